@@ -1,0 +1,5 @@
+//! Directions on the sphere and sampling grids.
+
+mod direction;
+
+pub use direction::Direction;

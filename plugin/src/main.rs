@@ -1,0 +1,5 @@
+//! The `fieldglass` command-line program.
+
+fn main() {
+    println!("fieldglass {}", env!("CARGO_PKG_VERSION"));
+}
