@@ -22,5 +22,11 @@
 //! Build plans off the audio thread (they own all scratch memory), then execute them as often as
 //! needed without allocation.
 
+pub mod beam;
+pub mod encoder;
+pub mod format;
+pub mod loudness;
+pub mod meters;
+pub mod peaks;
 pub mod sh;
 pub mod sphere;

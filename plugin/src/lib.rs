@@ -3,6 +3,8 @@
 //! The audio path is a pure pass-through: the host's buffer is never written. Analysis lives in
 //! `fieldglass-dsp`; this crate wires it to the plugin formats and (later) the editor.
 
+pub mod wav;
+
 use nice_plug::prelude::*;
 use std::num::NonZeroU32;
 use std::sync::Arc;

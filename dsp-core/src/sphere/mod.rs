@@ -1,5 +1,6 @@
 //! Directions on the sphere and sampling grids.
 
 mod direction;
+pub mod grid;
 
-pub use direction::Direction;
+pub use direction::{Direction, wrap_azimuth_deg};

@@ -1,0 +1,2 @@
+// (in progress) criterion benchmarks of the power-map paths.
+fn main() {}
