@@ -269,14 +269,22 @@ fn tech3341_cases_3_to_5_integrated() {
 // generated signals; recipes and results in tests/data/loudness_vectors.txt, written by
 // tests/data/gen_loudness_vectors.py.
 
+/// One recipe segment: duration, noise amplitude and seed, sines.
+struct Segment {
+    duration_s: f64,
+    noise_amp: f64,
+    noise_seed: u64,
+    /// (freq_hz, amp, phase_rad)
+    sines: Vec<(f64, f64, f64)>,
+}
+
 struct Recipe {
     name: String,
     fs: f64,
     pyloudnorm_k_weighting_lufs: f64,
     pyloudnorm_deman_lufs: f64,
     scipy_exact_lufs: f64,
-    /// (duration_s, noise_amp, noise_seed, sines as (freq_hz, amp, phase_rad))
-    segments: Vec<(f64, f64, u64, Vec<(f64, f64, f64)>)>,
+    segments: Vec<Segment>,
 }
 
 fn parse_recipes() -> Vec<Recipe> {
@@ -312,11 +320,12 @@ fn parse_recipes() -> Vec<Recipe> {
                     })
                     .collect();
                 let seed = fields[3].parse::<u64>().unwrap();
-                current
-                    .as_mut()
-                    .unwrap()
-                    .segments
-                    .push((num(1), num(2), seed, sines));
+                current.as_mut().unwrap().segments.push(Segment {
+                    duration_s: num(1),
+                    noise_amp: num(2),
+                    noise_seed: seed,
+                    sines,
+                });
             }
             "end" => recipes.push(current.take().unwrap()),
             other => panic!("unknown record {other}"),
@@ -341,16 +350,16 @@ impl Lcg {
 fn synthesise(recipe: &Recipe) -> Vec<f32> {
     let fs = recipe.fs;
     let mut out = Vec::new();
-    for (duration_s, noise_amp, seed, sines) in &recipe.segments {
-        let count = (duration_s * fs).round() as usize;
-        let mut noise = Lcg(*seed);
+    for segment in &recipe.segments {
+        let count = (segment.duration_s * fs).round() as usize;
+        let mut noise = Lcg(segment.noise_seed);
         for n in 0..count {
             let mut x = 0.0;
-            for &(f, a, p) in sines {
+            for &(f, a, p) in &segment.sines {
                 x += a * (2.0 * PI * f * n as f64 / fs + p).sin();
             }
-            if *noise_amp != 0.0 {
-                x += noise_amp * noise.next_uniform();
+            if segment.noise_amp != 0.0 {
+                x += segment.noise_amp * noise.next_uniform();
             }
             out.push(x as f32);
         }
