@@ -1,1 +1,195 @@
-//! (in progress)
+//! Source directions from a power map: local maxima with a minimum separation, refined below
+//! the grid step, levels relative to the strongest.
+
+use crate::sphere::Direction;
+use crate::sphere::grid::EquirectGrid;
+
+/// One peak of a power map.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Peak {
+    /// Refined direction of the maximum.
+    pub direction: Direction,
+    /// Refined map value at the peak (units of the map, i.e. power).
+    pub value: f64,
+    /// 10·log10(value / strongest peak value) in dB; 0 for the strongest peak.
+    pub level_db: f64,
+}
+
+/// Finds the strongest separated local maxima of maps on one grid.
+///
+/// Owns all scratch; [`find`](Self::find) never allocates.
+#[derive(Clone, Debug)]
+pub struct PeakFinder {
+    grid: EquirectGrid,
+    max_peaks: usize,
+    /// (value, pixel index) of local maxima above the floor.
+    candidates: Vec<(f32, u32)>,
+    peaks: Vec<Peak>,
+}
+
+impl PeakFinder {
+    /// A finder for maps on `grid` reporting at most `max_peaks` peaks.
+    pub fn new(grid: EquirectGrid, max_peaks: usize) -> Self {
+        Self {
+            grid,
+            max_peaks,
+            candidates: Vec::with_capacity(grid.len()),
+            peaks: Vec::with_capacity(max_peaks),
+        }
+    }
+
+    /// The grid maps must be on.
+    pub fn grid(&self) -> EquirectGrid {
+        self.grid
+    }
+
+    /// Peaks of `map` (row-major on the grid, see [`EquirectGrid`]), strongest first.
+    ///
+    /// - A peak is a pixel no lower than its 8 neighbours (azimuth wraps; beyond a pole the
+    ///   neighbours are the pixels across it, half a turn away), ties going to the earlier pixel.
+    /// - Its position is refined by a parabola through the pixel and its two neighbours, along
+    ///   the row and along the column independently; the value adds both parabolic corrections.
+    /// - Peaks closer than `min_separation_deg` (great-circle) to a stronger accepted peak are
+    ///   dropped, as are peaks more than `floor_db` (a positive number of dB) below the
+    ///   strongest.
+    ///
+    /// Returns an empty slice if the map has the wrong size, no positive finite maximum, or
+    /// `max_peaks` is 0. Non-finite pixels are ignored.
+    pub fn find(&mut self, map: &[f32], min_separation_deg: f64, floor_db: f64) -> &[Peak] {
+        self.peaks.clear();
+        self.candidates.clear();
+        if map.len() != self.grid.len() || self.max_peaks == 0 {
+            return &self.peaks;
+        }
+        let maximum = map
+            .iter()
+            .copied()
+            .filter(|v| v.is_finite())
+            .fold(f32::NEG_INFINITY, f32::max);
+        if !(maximum > 0.0) {
+            return &self.peaks;
+        }
+        let floor_ratio = 10f64.powf(-floor_db.abs() / 10.0);
+        let threshold = (maximum as f64 * floor_ratio) as f32;
+
+        let (width, height) = (self.grid.width(), self.grid.height());
+        for row in 0..height {
+            for col in 0..width {
+                let index = row * width + col;
+                let value = map[index];
+                if !(value >= threshold) || !value.is_finite() {
+                    continue;
+                }
+                if self.is_local_maximum(map, row, col, value) {
+                    self.candidates.push((value, index as u32));
+                }
+            }
+        }
+        // Strongest first; equal values keep scan order. sort_unstable does not allocate.
+        self.candidates
+            .sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+
+        for k in 0..self.candidates.len() {
+            if self.peaks.len() == self.max_peaks {
+                break;
+            }
+            let index = self.candidates[k].1 as usize;
+            let peak = self.refine(map, index / width, index % width);
+            let separated = self
+                .peaks
+                .iter()
+                .all(|p| p.direction.angle_to_deg(&peak.direction) >= min_separation_deg);
+            if separated {
+                self.peaks.push(peak);
+            }
+        }
+        let reference = self.peaks.first().map_or(1.0, |p| p.value);
+        for peak in &mut self.peaks {
+            peak.level_db = 10.0 * (peak.value / reference).log10();
+        }
+        &self.peaks
+    }
+
+    /// The peaks found by the last call to [`find`](Self::find).
+    pub fn peaks(&self) -> &[Peak] {
+        &self.peaks
+    }
+
+    /// Map value at (row, col), where row may be −1 or H (across a pole) and col wraps.
+    fn value_at(&self, map: &[f32], row: isize, col: isize) -> f32 {
+        let (width, height) = (self.grid.width() as isize, self.grid.height() as isize);
+        let (row, col) = if row < 0 {
+            (0, col + width / 2)
+        } else if row >= height {
+            (height - 1, col + width / 2)
+        } else {
+            (row, col)
+        };
+        let value = map[(row * width + col.rem_euclid(width)) as usize];
+        if value.is_finite() {
+            value
+        } else {
+            f32::NEG_INFINITY
+        }
+    }
+
+    fn is_local_maximum(&self, map: &[f32], row: usize, col: usize, value: f32) -> bool {
+        let (width, height) = (self.grid.width(), self.grid.height());
+        let here = row * width + col;
+        for dr in -1isize..=1 {
+            for dc in -1isize..=1 {
+                if dr == 0 && dc == 0 {
+                    continue;
+                }
+                let (r, c) = (row as isize + dr, col as isize + dc);
+                // Across a pole the neighbour is half a turn away in the same edge row.
+                let (r_wrapped, c_wrapped) = if r < 0 {
+                    (0, c + (width / 2) as isize)
+                } else if r >= height as isize {
+                    (height as isize - 1, c + (width / 2) as isize)
+                } else {
+                    (r, c)
+                };
+                let there =
+                    r_wrapped as usize * width + c_wrapped.rem_euclid(width as isize) as usize;
+                if there == here {
+                    continue;
+                }
+                let neighbour = self.value_at(map, r, c);
+                // Ties go to the earlier pixel so a plateau yields one peak.
+                if neighbour > value || (neighbour == value && there < here) {
+                    return false;
+                }
+            }
+        }
+        true
+    }
+
+    fn refine(&self, map: &[f32], row: usize, col: usize) -> Peak {
+        let (r, c) = (row as isize, col as isize);
+        let centre = map[row * self.grid.width() + col] as f64;
+        let parabola = |before: f32, after: f32| -> (f64, f64) {
+            let (before, after) = (before as f64, after as f64);
+            let curvature = before - 2.0 * centre + after;
+            if !(curvature < 0.0) || !before.is_finite() || !after.is_finite() {
+                return (0.0, 0.0);
+            }
+            let offset = (0.5 * (before - after) / curvature).clamp(-0.5, 0.5);
+            (offset, -0.25 * (before - after) * offset)
+        };
+        let (col_offset, col_gain) =
+            parabola(self.value_at(map, r, c - 1), self.value_at(map, r, c + 1));
+        let (row_offset, row_gain) = if self.grid.height() > 1 {
+            parabola(self.value_at(map, r - 1, c), self.value_at(map, r + 1, c))
+        } else {
+            (0.0, 0.0)
+        };
+        Peak {
+            direction: self
+                .grid
+                .direction_at(row as f64 + row_offset, col as f64 + col_offset),
+            value: centre + col_gain + row_gain,
+            level_db: 0.0,
+        }
+    }
+}
