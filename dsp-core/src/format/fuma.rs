@@ -21,8 +21,15 @@ pub const FUMA_TO_ACN: [usize; FUMA_CHANNELS] =
     [0, 3, 1, 2, 6, 7, 5, 8, 4, 12, 13, 11, 14, 10, 15, 9];
 
 /// FuMa channel carrying each ACN index, indexed by [acn] (the inverse of [`FUMA_TO_ACN`]).
-pub const ACN_TO_FUMA: [usize; FUMA_CHANNELS] =
-    [0, 2, 3, 1, 8, 6, 4, 7, 5, 15, 13, 11, 9, 10, 12, 14];
+pub const ACN_TO_FUMA: [usize; FUMA_CHANNELS] = {
+    let mut inverse = [0; FUMA_CHANNELS];
+    let mut fuma_channel = 0;
+    while fuma_channel < FUMA_CHANNELS {
+        inverse[FUMA_TO_ACN[fuma_channel]] = fuma_channel;
+        fuma_channel += 1;
+    }
+    inverse
+};
 
 /// maxN/SN3D gain k (maxN = k·SN3D), indexed by [acn]: each component of order ≥ 1 then peaks
 /// at |1| over the sphere; W carries 1/√2 (Furse–Malham weighting).
@@ -82,6 +89,9 @@ mod tests {
         for (fuma_channel, &acn) in FUMA_TO_ACN.iter().enumerate() {
             assert_eq!(ACN_TO_FUMA[acn], fuma_channel);
         }
+        // Spot values written out by hand: S (FuMa 5) is ACN 7, Q (FuMa 15) is ACN 9.
+        assert_eq!(ACN_TO_FUMA[7], 5);
+        assert_eq!(ACN_TO_FUMA[9], 15);
         let close = |a: f64, b: f64| (a - b).abs() < 1e-15;
         assert!(close(MAXN_GAIN[4], 2.0 / 3f64.sqrt()));
         assert!(close(MAXN_GAIN[11], (45.0f64 / 32.0).sqrt()));
