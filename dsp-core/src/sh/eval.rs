@@ -10,17 +10,27 @@ pub(crate) const fn tri(n: usize, m: usize) -> usize {
 /// Schmidt semi-normalised (= SN3D) associated Legendre functions `N_n^m P_n^m(x)`, no
 /// Condon–Shortley phase, for 0 ≤ m ≤ n ≤ `order`, written to `out[n(n+1)/2 + m]`.
 ///
-/// `x` is sin(elevation); `out` must hold at least (order+1)(order+2)/2 values.
+/// `x` is sin(elevation); `out` must hold at least (order+1)(order+2)/2 values. Near the poles
+/// prefer [`sn3d_legendre_sin_cos`], which takes cos(elevation) directly: forming
+/// sqrt(1 − x²) here loses relative accuracy as |x| → 1 (about 1e-7 relative at 89.999°).
+pub fn sn3d_legendre(order: usize, x: f64, out: &mut [f64]) {
+    let x = x.clamp(-1.0, 1.0);
+    sn3d_legendre_sin_cos(order, x, (1.0 - x * x).max(0.0).sqrt(), out);
+}
+
+/// As [`sn3d_legendre`] with both `sin_el` = sin(elevation) and `cos_el` = cos(elevation)
+/// given, so that values near the poles keep full relative accuracy.
 /// Recurrences (no factorials): P_m^m = sqrt((2m-1)/(2m))·s·P_{m-1}^{m-1} (m ≥ 2), P_1^1 = s,
 /// P_{m+1}^m = sqrt(2m+1)·x·P_m^m, and for n ≥ m+2
-/// P_n^m = ((2n-1)·x·P_{n-1}^m − sqrt((n-1)²−m²)·P_{n-2}^m) / sqrt(n²−m²), with s = sqrt(1−x²).
-pub fn sn3d_legendre(order: usize, x: f64, out: &mut [f64]) {
+/// P_n^m = ((2n-1)·x·P_{n-1}^m − sqrt((n-1)²−m²)·P_{n-2}^m) / sqrt(n²−m²), with x = sin_el and
+/// s = cos_el.
+pub fn sn3d_legendre_sin_cos(order: usize, sin_el: f64, cos_el: f64, out: &mut [f64]) {
     assert!(
         out.len() >= tri(order, order) + 1,
         "Legendre table too short"
     );
-    let x = x.clamp(-1.0, 1.0);
-    let s = (1.0 - x * x).max(0.0).sqrt();
+    let x = sin_el.clamp(-1.0, 1.0);
+    let s = cos_el.abs().min(1.0);
     out[0] = 1.0;
     let mut diag = 1.0;
     for m in 0..=order {
@@ -79,7 +89,8 @@ impl ShEvaluator {
     pub fn eval_rad(&mut self, azimuth_rad: f64, elevation_rad: f64, out: &mut [f64]) {
         let order = self.order;
         assert!(out.len() >= channel_count(order), "SH output too short");
-        sn3d_legendre(order, elevation_rad.sin(), &mut self.legendre);
+        let (sin_el, cos_el) = elevation_rad.sin_cos();
+        sn3d_legendre_sin_cos(order, sin_el, cos_el, &mut self.legendre);
         for m in 0..=order {
             let (s, c) = (m as f64 * azimuth_rad).sin_cos();
             self.cos_m[m] = c;

@@ -3,7 +3,7 @@
 
 mod eval;
 
-pub use eval::{ShEvaluator, sh_sn3d, sn3d_legendre};
+pub use eval::{ShEvaluator, sh_sn3d, sn3d_legendre, sn3d_legendre_sin_cos};
 
 /// Highest order the SH evaluator supports. Recurrences are stable far beyond this; the limit
 /// only bounds table sizes.
