@@ -39,7 +39,7 @@ pub fn encoding_gains(
 pub struct PlaneWaveEncoder {
     evaluator: ShEvaluator,
     plan: ConversionPlan,
-    /// SN3D values, indexed by [acn].
+    /// SN3D values, indexed by \[acn\].
     sn3d: Vec<f64>,
     /// Gains in the output format, indexed by [output channel].
     gains: Vec<f64>,

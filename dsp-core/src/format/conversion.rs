@@ -15,8 +15,8 @@ pub enum ConversionDirection {
 /// not branch on the format.
 ///
 /// - [`to_sn3d`](Self::to_sn3d): input in the stream format's channel order, output indexed by
-///   [acn] in SN3D, so `source_channel(acn)` is the stream channel that carries that ACN.
-/// - [`from_sn3d`](Self::from_sn3d): input indexed by [acn] in SN3D, output in the stream
+///   \[acn\] in SN3D, so `source_channel(acn)` is the stream channel that carries that ACN.
+/// - [`from_sn3d`](Self::from_sn3d): input indexed by \[acn\] in SN3D, output in the stream
 ///   format's channel order and scaling.
 #[derive(Clone, Debug)]
 pub struct ConversionPlan {

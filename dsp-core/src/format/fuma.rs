@@ -20,7 +20,7 @@ pub const FUMA_LETTERS: [char; FUMA_CHANNELS] = [
 pub const FUMA_TO_ACN: [usize; FUMA_CHANNELS] =
     [0, 3, 1, 2, 6, 7, 5, 8, 4, 12, 13, 11, 14, 10, 15, 9];
 
-/// FuMa channel carrying each ACN index, indexed by [acn] (the inverse of [`FUMA_TO_ACN`]).
+/// FuMa channel carrying each ACN index, indexed by \[acn\] (the inverse of [`FUMA_TO_ACN`]).
 pub const ACN_TO_FUMA: [usize; FUMA_CHANNELS] = {
     let mut inverse = [0; FUMA_CHANNELS];
     let mut fuma_channel = 0;
@@ -31,7 +31,7 @@ pub const ACN_TO_FUMA: [usize; FUMA_CHANNELS] = {
     inverse
 };
 
-/// maxN/SN3D gain k (maxN = k·SN3D), indexed by [acn]: each component of order ≥ 1 then peaks
+/// maxN/SN3D gain k (maxN = k·SN3D), indexed by \[acn\]: each component of order ≥ 1 then peaks
 /// at |1| over the sphere; W carries 1/√2 (Furse–Malham weighting).
 const MAXN_GAIN: [f64; FUMA_CHANNELS] = {
     let sqrt2 = std::f64::consts::SQRT_2;
