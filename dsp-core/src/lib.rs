@@ -23,10 +23,15 @@
 //! needed without allocation.
 
 pub mod beam;
+pub mod covariance;
 pub mod encoder;
+pub mod engine;
 pub mod format;
+pub mod format_check;
 pub mod loudness;
 pub mod meters;
 pub mod peaks;
+pub mod render;
+pub mod scene;
 pub mod sh;
 pub mod sphere;

@@ -1,0 +1,7 @@
+//! The analysis engine: blocks in, snapshots out. One type used identically by the plugin and
+//! the scanner.
+
+pub mod handoff;
+pub mod snapshot;
+
+pub use snapshot::*;

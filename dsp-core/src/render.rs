@@ -1,0 +1,1 @@
+//! (in progress) map → RGBA rendering with a perceptually uniform palette.
