@@ -203,7 +203,7 @@ impl<W: Write + Seek> WavWriter<W> {
     /// Writes interleaved frames; `samples.len()` must be a multiple of the channel count.
     pub fn write_interleaved(&mut self, samples: &[f32]) -> Result<(), WavError> {
         let channels = self.spec.channels as usize;
-        if samples.len() % channels != 0 {
+        if !samples.len().is_multiple_of(channels) {
             return Err(WavError::BufferMismatch(format!(
                 "write_interleaved got {} samples, not a multiple of {channels} channels",
                 samples.len()
