@@ -97,7 +97,7 @@ impl<R: Read + Seek> WavReader<R> {
         };
 
         let mut fmt: Option<(WavSpec, Decoding, usize)> = None;
-        let (data_start, data_bytes) = loop {
+        let ((spec, decoding, block_align), data_start, data_bytes) = loop {
             if pos >= file_bytes {
                 return Err(WavError::MissingData {
                     fmt_seen: fmt.is_some(),
@@ -124,10 +124,10 @@ impl<R: Read + Seek> WavReader<R> {
             };
             match &id {
                 b"data" => {
-                    if fmt.is_none() {
+                    let Some(format) = fmt else {
                         return Err(WavError::DataBeforeFmt { at_byte: pos });
-                    }
-                    break (body_start, size);
+                    };
+                    break (format, body_start, size);
                 }
                 b"fmt " if fmt.is_none() => fmt = Some(source.read_fmt(body_start, size)?),
                 _ => {
@@ -145,7 +145,6 @@ impl<R: Read + Seek> WavReader<R> {
             // Chunks are padded to an even length (Microsoft RIFF).
             pos = body_start.saturating_add(size).saturating_add(size & 1);
         };
-        let (spec, decoding, block_align) = fmt.expect("data is only accepted after fmt");
 
         let available_bytes = file_bytes - data_start;
         let block = block_align as u64;
