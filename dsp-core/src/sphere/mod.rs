@@ -4,3 +4,4 @@ mod direction;
 pub mod grid;
 
 pub use direction::{Direction, wrap_azimuth_deg};
+pub use grid::{EquirectGrid, SphereGrid};

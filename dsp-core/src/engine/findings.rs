@@ -1,0 +1,134 @@
+//! Findings: plain-words statements a reviewer should see, with stable codes.
+
+use super::control::AnalysisSettings;
+use super::snapshot::{Finding, FindingCode, Severity, Snapshot};
+
+/// |DC| above this (−50 dBFS) over the meter window is reported.
+pub const DC_OFFSET_LIMIT: f64 = 0.003_162;
+/// Below this confidence a format disagreement is not reported.
+pub const MISMATCH_CONFIDENCE: f64 = 0.6;
+
+fn list(channels: &[usize]) -> String {
+    let names: Vec<String> = channels.iter().map(|c| (c + 1).to_string()).collect();
+    names.join(", ")
+}
+
+/// Findings for the live state in `snapshot` (meters, format check).
+pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec<Finding> {
+    let mut findings = Vec::new();
+    let status = &snapshot.channel_status;
+    let pick = |f: &dyn Fn(&super::snapshot::ChannelStatus) -> bool| -> Vec<usize> {
+        status
+            .iter()
+            .filter(|s| f(s))
+            .map(|s| s.input_index)
+            .collect()
+    };
+
+    let invalid = pick(&|s| s.reading.invalid_sample_count > 0);
+    if !invalid.is_empty() {
+        findings.push(Finding {
+            severity: Severity::Error,
+            code: FindingCode::InvalidSamples,
+            message: format!("NaN or infinite samples on channel(s) {}", list(&invalid)),
+            channels: invalid,
+        });
+    }
+    let clipped = pick(&|s| s.reading.clip_count > 0);
+    if !clipped.is_empty() {
+        let total: u64 = status.iter().map(|s| s.reading.clip_count).sum();
+        findings.push(Finding {
+            severity: Severity::Error,
+            code: FindingCode::Clipping,
+            message: format!(
+                "{total} sample(s) at or beyond full scale on channel(s) {}",
+                list(&clipped)
+            ),
+            channels: clipped,
+        });
+    }
+    let over = pick(&|s| s.over_omni);
+    if !over.is_empty() {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::OverOmni,
+            message: format!(
+                "channel(s) {} louder than W by more than {:.1} dB after conversion to SN3D: \
+                 check the normalisation",
+                list(&over),
+                settings.over_omni_tolerance_db
+            ),
+            channels: over,
+        });
+    }
+    let check = &snapshot.format_check;
+    if !check.silent_channels.is_empty() {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::SilentChannel,
+            message: format!(
+                "channel(s) {} carry no signal while W does",
+                list(&check.silent_channels)
+            ),
+            channels: check.silent_channels.clone(),
+        });
+    }
+    if !check.duplicate_channels.is_empty() {
+        let mut channels: Vec<usize> = check
+            .duplicate_channels
+            .iter()
+            .flat_map(|&(a, b)| [a, b])
+            .collect();
+        channels.sort_unstable();
+        channels.dedup();
+        let pairs: Vec<String> = check
+            .duplicate_channels
+            .iter()
+            .map(|&(a, b)| format!("{} = {}", a + 1, b + 1))
+            .collect();
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::DuplicateChannels,
+            message: format!("channels carry the same signal: {}", pairs.join("; ")),
+            channels,
+        });
+    }
+    if check.ready && check.effective_order < snapshot.order {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::OrderDeficit,
+            message: format!(
+                "the stream is order {} but only orders up to {} carry energy",
+                snapshot.order, check.effective_order
+            ),
+            channels: Vec::new(),
+        });
+    }
+    if let Some(detected) = check.detected
+        && check.ready
+        && detected != snapshot.assumed_format
+        && check.confidence >= MISMATCH_CONFIDENCE
+    {
+        findings.push(Finding {
+            severity: Severity::Error,
+            code: FindingCode::FormatMismatch,
+            message: format!(
+                "the signal looks like {} ({:.0} % confidence) but is read as {}",
+                detected.human_name(),
+                100.0 * check.confidence,
+                snapshot.assumed_format.human_name()
+            ),
+            channels: Vec::new(),
+        });
+    }
+    let dc = pick(&|s| s.reading.dc_offset.abs() > DC_OFFSET_LIMIT);
+    if !dc.is_empty() {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::DcOffset,
+            message: format!("DC offset above −50 dBFS on channel(s) {}", list(&dc)),
+            channels: dc,
+        });
+    }
+    findings
+}

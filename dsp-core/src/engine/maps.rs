@@ -1,0 +1,230 @@
+//! Map computation for one update: covariance → method-specific Q → fast power map → dB image
+//! and sources. Owns its plan and scratch; rebuilt only when the order or grid changes.
+
+use super::snapshot::{MapImage, MapMethod, MapScale, SourceReading};
+use crate::beam::{BeamKind, PowerMapPlan, beam_weights, sn3d_steering_gains};
+use crate::peaks::PeakFinder;
+use crate::sh::{channel_count, order_degree};
+use crate::sphere::grid::EquirectGrid;
+use nalgebra::{DMatrix, SymmetricEigen};
+
+/// Diagonal loading of MVDR, as a fraction of the mean eigenvalue (tr R / M) of the N3D
+/// covariance. 1e-2 lies inside the commonly used 1e-3…1e-1 range (Carlson 1988) and keeps the
+/// map stable for short time constants.
+pub const MVDR_LOADING: f64 = 1e-2;
+
+/// MUSIC signal-subspace size: eigenvalues of the N3D covariance (diffuse noise → R ∝ I) more
+/// than this factor above the median eigenvalue count as signal; at least 1, at most M−1.
+pub const MUSIC_SIGNAL_FACTOR: f64 = 10.0;
+
+/// Floor for map values in dB, so that empty or negative (round-off) pixels stay finite.
+pub const MAP_FLOOR_DB: f32 = -150.0;
+
+pub struct MapMaker {
+    grid: EquirectGrid,
+    plan: PowerMapPlan,
+    peaks: PeakFinder,
+    weights: [Vec<f64>; 3],
+    /// Steering gains of the plan for unit weights, per acn (to undo them for MVDR/MUSIC).
+    unit_gain_per_acn: Vec<f64>,
+    /// sqrt(2n+1) per acn: SN3D → N3D.
+    n3d_per_acn: Vec<f64>,
+    q: Vec<f64>,
+    linear: Vec<f32>,
+    ones: Vec<f64>,
+}
+
+impl MapMaker {
+    pub fn new(order: usize, grid: EquirectGrid, max_sources: usize) -> Result<Self, String> {
+        let plan = PowerMapPlan::new(order, grid).map_err(|e| e.to_string())?;
+        let m = channel_count(order);
+        let ones = vec![1.0; order + 1];
+        let mut unit_gains = vec![0.0; order + 1];
+        sn3d_steering_gains(&ones, &mut unit_gains);
+        Ok(Self {
+            grid,
+            plan,
+            peaks: PeakFinder::new(grid, max_sources.max(1)),
+            weights: [
+                beam_weights(BeamKind::Basic, order),
+                beam_weights(BeamKind::MaxRe, order),
+                beam_weights(BeamKind::InPhase, order),
+            ],
+            unit_gain_per_acn: (0..m).map(|a| unit_gains[order_degree(a).0]).collect(),
+            n3d_per_acn: (0..m)
+                .map(|a| ((2 * order_degree(a).0 + 1) as f64).sqrt())
+                .collect(),
+            q: vec![0.0; m * m],
+            linear: vec![0.0; grid.len()],
+            ones,
+        })
+    }
+
+    /// Computes the map of `r_sn3d` (M×M, ACN/SN3D, row-major) into `image` and its sources.
+    /// Allocation happens only on the first call for a given grid size (the image buffer).
+    #[allow(clippy::too_many_arguments)]
+    pub fn make(
+        &mut self,
+        r_sn3d: &[f64],
+        method: MapMethod,
+        scale: MapScale,
+        min_separation_deg: f64,
+        floor_db: f64,
+        image: &mut MapImage,
+        sources: &mut Vec<SourceReading>,
+    ) {
+        let reciprocal = match method {
+            MapMethod::Basic | MapMethod::MaxRe | MapMethod::InPhase => {
+                let w = &self.weights[match method {
+                    MapMethod::Basic => 0,
+                    MapMethod::MaxRe => 1,
+                    _ => 2,
+                }];
+                let ok = self.plan.evaluate(r_sn3d, w, &mut self.linear).is_ok();
+                if !ok {
+                    self.linear.fill(0.0);
+                }
+                false
+            }
+            MapMethod::Mvdr => {
+                self.mvdr_q(r_sn3d);
+                let _ = self.plan.evaluate(&self.q, &self.ones, &mut self.linear);
+                true
+            }
+            MapMethod::Music => {
+                self.music_q(r_sn3d);
+                let _ = self.plan.evaluate(&self.q, &self.ones, &mut self.linear);
+                true
+            }
+        };
+        if reciprocal {
+            for v in &mut self.linear {
+                *v = if *v > 0.0 && v.is_finite() {
+                    1.0 / *v
+                } else {
+                    0.0
+                };
+            }
+        }
+        let max = self
+            .linear
+            .iter()
+            .copied()
+            .filter(|v| v.is_finite())
+            .fold(0.0f32, f32::max);
+        let relative = matches!(scale, MapScale::RelativeDb) || matches!(method, MapMethod::Music);
+        let reference = if relative {
+            max.max(f32::MIN_POSITIVE)
+        } else {
+            1.0
+        };
+        image.width = self.grid.width();
+        image.height = self.grid.height();
+        image.values_db.resize(self.grid.len(), MAP_FLOOR_DB);
+        let mut max_db = MAP_FLOOR_DB;
+        for (d, &v) in image.values_db.iter_mut().zip(&self.linear) {
+            let db = if v > 0.0 {
+                (10.0 * (v / reference).log10()).max(MAP_FLOOR_DB)
+            } else {
+                MAP_FLOOR_DB
+            };
+            *d = db;
+            max_db = max_db.max(db);
+        }
+        image.max_db = max_db;
+        image.scale = if relative {
+            MapScale::RelativeDb
+        } else {
+            MapScale::AbsoluteDbfs
+        };
+        image.method = method;
+        sources.clear();
+        if max > 0.0 {
+            for p in self.peaks.find(&self.linear, min_separation_deg, floor_db) {
+                sources.push(SourceReading {
+                    direction: p.direction,
+                    level_db: p.level_db,
+                });
+            }
+        }
+    }
+
+    /// Q for MVDR: yᵀQy = y_n3dᵀ (R_n3d + δI)⁻¹ y_n3d, pre-divided by the plan's unit steering
+    /// gains so that the plan's steering reproduces the plain N3D steering vector.
+    fn mvdr_q(&mut self, r_sn3d: &[f64]) {
+        let m = self.n3d_per_acn.len();
+        let mut r = self.n3d_matrix(r_sn3d);
+        let trace: f64 = (0..m).map(|i| r[(i, i)]).sum();
+        let loading = (MVDR_LOADING * trace / m as f64).max(1e-30);
+        for i in 0..m {
+            r[(i, i)] += loading;
+        }
+        let inverse = r
+            .clone()
+            .cholesky()
+            .map(|c| c.inverse())
+            .or_else(|| r.try_inverse());
+        match inverse {
+            Some(inv) => self.store_q_from_n3d(&inv),
+            None => self.q.fill(0.0),
+        }
+    }
+
+    /// Q for MUSIC: the noise-subspace projector in N3D.
+    fn music_q(&mut self, r_sn3d: &[f64]) {
+        let m = self.n3d_per_acn.len();
+        let r = self.n3d_matrix(r_sn3d);
+        let eigen = SymmetricEigen::new(r);
+        let mut order: Vec<usize> = (0..m).collect();
+        order.sort_by(|&a, &b| eigen.eigenvalues[b].total_cmp(&eigen.eigenvalues[a]));
+        let mut sorted: Vec<f64> = order
+            .iter()
+            .map(|&i| eigen.eigenvalues[i].max(0.0))
+            .collect();
+        let signal = signal_subspace_size(&mut sorted);
+        let mut projector = DMatrix::<f64>::zeros(m, m);
+        for &k in &order[signal..] {
+            let u = eigen.eigenvectors.column(k);
+            projector += &u * u.transpose();
+        }
+        self.store_q_from_n3d(&projector);
+    }
+
+    fn n3d_matrix(&self, r_sn3d: &[f64]) -> DMatrix<f64> {
+        let m = self.n3d_per_acn.len();
+        DMatrix::from_fn(m, m, |i, j| {
+            let v = 0.5 * (r_sn3d[i * m + j] + r_sn3d[j * m + i]);
+            if v.is_finite() {
+                v * self.n3d_per_acn[i] * self.n3d_per_acn[j]
+            } else {
+                0.0
+            }
+        })
+    }
+
+    fn store_q_from_n3d(&mut self, q_n3d: &DMatrix<f64>) {
+        let m = self.n3d_per_acn.len();
+        for i in 0..m {
+            for j in 0..m {
+                let d = self.n3d_per_acn[i] * self.n3d_per_acn[j];
+                let g = self.unit_gain_per_acn[i] * self.unit_gain_per_acn[j];
+                self.q[i * m + j] = q_n3d[(i, j)] * d / g;
+            }
+        }
+    }
+}
+
+/// Number of eigenvalues (sorted descending, modified in place) that stand more than
+/// [`MUSIC_SIGNAL_FACTOR`] above the median; between 1 and M−1.
+pub fn signal_subspace_size(sorted_desc: &mut [f64]) -> usize {
+    let m = sorted_desc.len();
+    if m < 2 {
+        return 0;
+    }
+    let median = sorted_desc[m / 2];
+    let count = sorted_desc
+        .iter()
+        .filter(|&&l| l > MUSIC_SIGNAL_FACTOR * median)
+        .count();
+    count.clamp(1, m - 1)
+}

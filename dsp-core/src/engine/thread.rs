@@ -1,0 +1,112 @@
+//! Running the analysis on its own thread, fed by the audio-side hand-off.
+
+use super::analyzer::{Analyzer, EngineError, StreamSetup};
+use super::control::{EngineControl, SnapshotSlot};
+use super::handoff::{AudioSide, BlockReceiver, handoff};
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::thread::JoinHandle;
+use std::time::Duration;
+
+/// Seconds of audio the block pool can hold while the analysis thread is busy.
+const POOL_SECONDS: f64 = 0.5;
+const MAX_CHANNELS: usize = 66;
+
+/// Builds the audio and analysis sides for a stream.
+pub struct Engine;
+
+impl Engine {
+    /// Allocates the pool, builds the analysis and starts its thread. Call from a non-realtime
+    /// thread (plugin activation); the returned [`AudioSide`] is what the audio thread uses.
+    pub fn start(
+        setup: StreamSetup,
+        max_block_frames: usize,
+        control: Arc<EngineControl>,
+        slot: Arc<SnapshotSlot>,
+    ) -> Result<(AudioSide, AnalysisThread), EngineError> {
+        let mut analyzer = Analyzer::new(setup, control.load())?;
+        let block_frames = max_block_frames.clamp(64, 2048);
+        analyzer.reserve_block(block_frames);
+        let pool = ((POOL_SECONDS * setup.sample_rate_hz / block_frames as f64).ceil() as usize)
+            .clamp(8, 512);
+        let (audio, receiver) = handoff(setup.channels, block_frames, pool);
+        let stop = Arc::new(AtomicBool::new(false));
+        let thread_stop = stop.clone();
+        let handle = std::thread::Builder::new()
+            .name("fieldglass-analysis".into())
+            .spawn(move || run(analyzer, receiver, control, slot, thread_stop))
+            .map_err(|e| EngineError::Settings(format!("cannot start the analysis thread: {e}")))?;
+        Ok((
+            audio,
+            AnalysisThread {
+                stop,
+                handle: Some(handle),
+            },
+        ))
+    }
+}
+
+/// Handle of the analysis thread; dropping it stops and joins the thread.
+pub struct AnalysisThread {
+    stop: Arc<AtomicBool>,
+    handle: Option<JoinHandle<()>>,
+}
+
+impl AnalysisThread {
+    /// Stops the thread and waits for it.
+    pub fn stop(&mut self) {
+        self.stop.store(true, Ordering::Release);
+        if let Some(h) = self.handle.take() {
+            let _ = h.join();
+        }
+    }
+}
+
+impl Drop for AnalysisThread {
+    fn drop(&mut self) {
+        self.stop();
+    }
+}
+
+fn run(
+    mut analyzer: Analyzer,
+    receiver: BlockReceiver,
+    control: Arc<EngineControl>,
+    slot: Arc<SnapshotSlot>,
+    stop: Arc<AtomicBool>,
+) {
+    let mut generation = control.generation();
+    let empty: &[f32] = &[];
+    while !stop.load(Ordering::Acquire) {
+        let g = control.generation();
+        if g != generation {
+            generation = g;
+            // A setting the analysis cannot take (e.g. FuMa above third order) keeps the
+            // previous one; the snapshot shows which format is in use.
+            let _ = analyzer.apply_settings(control.load());
+        }
+        let (loudness, integrated, clips) = control.take_requests();
+        if loudness {
+            analyzer.reset_loudness();
+        }
+        if integrated {
+            analyzer.reset_integrated();
+        }
+        if clips {
+            analyzer.reset_clips();
+            receiver.counters().reset_clips();
+        }
+        receiver.recv_with(Duration::from_millis(20), |block| {
+            let mut channels = [empty; MAX_CHANNELS];
+            let n = block.channels().min(MAX_CHANNELS);
+            for (c, slot) in channels.iter_mut().enumerate().take(n) {
+                *slot = block.channel(c);
+            }
+            let counters = receiver.counters();
+            analyzer.set_health_counters(counters.sent_blocks(), counters.dropped_blocks());
+            if analyzer.process(&channels[..n]) {
+                slot.publish(Arc::new(analyzer.snapshot().clone()));
+            }
+        });
+    }
+}
