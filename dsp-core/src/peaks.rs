@@ -66,7 +66,7 @@ impl PeakFinder {
             .copied()
             .filter(|v| v.is_finite())
             .fold(f32::NEG_INFINITY, f32::max);
-        if !(maximum > 0.0) {
+        if maximum <= 0.0 {
             return &self.peaks;
         }
         let floor_ratio = 10f64.powf(-floor_db.abs() / 10.0);
@@ -77,7 +77,7 @@ impl PeakFinder {
             for col in 0..width {
                 let index = row * width + col;
                 let value = map[index];
-                if !(value >= threshold) || !value.is_finite() {
+                if !value.is_finite() || value < threshold {
                     continue;
                 }
                 if self.is_local_maximum(map, row, col, value) {
@@ -171,7 +171,7 @@ impl PeakFinder {
         let parabola = |before: f32, after: f32| -> (f64, f64) {
             let (before, after) = (before as f64, after as f64);
             let curvature = before - 2.0 * centre + after;
-            if !(curvature < 0.0) || !before.is_finite() || !after.is_finite() {
+            if !before.is_finite() || !after.is_finite() || curvature >= 0.0 || curvature.is_nan() {
                 return (0.0, 0.0);
             }
             let offset = (0.5 * (before - after) / curvature).clamp(-0.5, 0.5);

@@ -55,12 +55,19 @@ impl GauntTable {
             );
         }
         let azimuth_points = 4 * order + 2;
-        let trig = |m: i32, phi: f64| -> f64 {
-            if m >= 0 {
-                (m as f64 * phi).cos()
-            } else {
-                (-m as f64 * phi).sin()
+        // trig_table[(m + 2N)·K + k] = cos(m·φ_k) for m ≥ 0, sin(|m|·φ_k) for m < 0.
+        let max_degree = product_order as i32;
+        let mut trig_table = Vec::with_capacity((2 * product_order + 1) * azimuth_points);
+        for m in -max_degree..=max_degree {
+            for k in 0..azimuth_points {
+                let phi = 2.0 * PI * k as f64 / azimuth_points as f64;
+                let angle = m.unsigned_abs() as f64 * phi;
+                trig_table.push(if m >= 0 { angle.cos() } else { angle.sin() });
             }
+        }
+        let trig = |m: i32| {
+            let start = (m + max_degree) as usize * azimuth_points;
+            &trig_table[start..start + azimuth_points]
         };
         let tri = |n: usize, m: i32| n * (n + 1) / 2 + m.unsigned_abs() as usize;
 
@@ -80,11 +87,11 @@ impl GauntTable {
                             continue;
                         }
                         last = Some(mq);
-                        let azimuth: f64 = (0..azimuth_points)
-                            .map(|k| {
-                                let phi = 2.0 * PI * k as f64 / azimuth_points as f64;
-                                trig(mi, phi) * trig(mj, phi) * trig(mq, phi)
-                            })
+                        let azimuth: f64 = trig(mi)
+                            .iter()
+                            .zip(trig(mj))
+                            .zip(trig(mq))
+                            .map(|((a, b), c)| a * b * c)
                             .sum::<f64>()
                             * (2.0 * PI / azimuth_points as f64);
                         if azimuth.abs() < ZERO_TOLERANCE {
