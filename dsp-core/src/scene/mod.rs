@@ -207,11 +207,11 @@ impl Path {
 /// Levels of the sources in dB (applied to each voice's roughly unit-RMS signal while it
 /// sounds), chosen by measurement of W: see the report in the tests.
 mod levels_db {
-    pub const GUITAR: f64 = -22.0;
-    pub const TALKER: f64 = -27.0;
-    pub const TRAM_BELL: f64 = -26.0;
-    pub const GULL: f64 = -31.0;
-    pub const FOUNTAIN: f64 = -34.0;
+    pub const GUITAR: f64 = -17.0;
+    pub const TALKER: f64 = -21.0;
+    pub const TRAM_BELL: f64 = -23.0;
+    pub const GULL: f64 = -28.0;
+    pub const FOUNTAIN: f64 = -32.0;
     /// Per bed element; 32 incoherent elements add 15 dB.
     pub const BED_ELEMENT: f64 = -57.0;
 }

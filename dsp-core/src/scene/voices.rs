@@ -104,7 +104,7 @@ impl Guitar {
         let mut smooth = 0.0;
         let mut sum = 0.0;
         for value in &mut self.excitation[..len] {
-            smooth = 0.5 * smooth + 0.5 * self.random.noise();
+            smooth = 0.7 * smooth + 0.3 * self.random.noise();
             *value = smooth;
             sum += smooth;
         }
@@ -115,7 +115,7 @@ impl Guitar {
         string.loss = 10f64.powf(-3.0 / (freq_hz * GUITAR_RING_60_DB_S));
         for (slot, &value) in string.delay.iter_mut().zip(&self.excitation[..len]) {
             // A new note on a ringing string damps the old one to a third.
-            *slot = 0.3 * *slot + 2.2 * velocity * (value - mean);
+            *slot = 0.3 * *slot + 3.0 * velocity * (value - mean);
         }
         self.eighth_index += 1;
     }
