@@ -384,7 +384,7 @@ impl Voice for TramBell {
         for sample in out {
             let within = self.now % self.cycle_len;
             let strike = if within >= self.first_strike
-                && (within - self.first_strike) % self.strike_interval == 0
+                && (within - self.first_strike).is_multiple_of(self.strike_interval)
                 && (within - self.first_strike) / self.strike_interval < BELL_STRIKES_PER_PASS
             {
                 self.random.range(0.85, 1.0)
