@@ -11,9 +11,9 @@
 //! - `"gull-1"`, `"gull-2"`: circling overhead (elevation 65° and 70°), intermittent gliding calls.
 //! - `"fountain"`: behind and a little below (180°, −10°), steady filtered noise.
 //! - `"diffuse bed"`: wind and distant traffic rumble from 32 mutually incoherent noise
-//!   sources on a Fibonacci spiral, about 20 dB below the direct sound.
+//!   sources on a Fibonacci spiral, about 17 dB below the direct sound in W.
 //!
-//! With the default levels W measures about −23 LUFS and peaks well below full scale in every
+//! With the default levels W measures about −24 LUFS (peaks near −9 dBFS) and stays below full scale in every
 //! format and order (see the tests in `dsp-core/tests/scene.rs`).
 //!
 //! [`DemoScene::render`] is streaming, allocation-free and deterministic: a given seed gives
