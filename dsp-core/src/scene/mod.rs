@@ -13,8 +13,8 @@
 //! - `"diffuse bed"`: wind and distant traffic rumble from 32 mutually incoherent noise
 //!   sources on a Fibonacci spiral, about 17 dB below the direct sound in W.
 //!
-//! With the default levels W measures about −24 LUFS (peaks near −9 dBFS) and stays below full scale in every
-//! format and order (see the tests in `dsp-core/tests/scene.rs`).
+//! With the default levels W measures about −24 LUFS (peaks near −9 dBFS), and every format
+//! and order stays below full scale (see the tests in `dsp-core/tests/scene.rs`).
 //!
 //! [`DemoScene::render`] is streaming, allocation-free and deterministic: a given seed gives
 //! the same samples however the stream is split into blocks. Moving sources get new encoding
