@@ -21,7 +21,7 @@ pub(crate) fn silent_channels(channel_mean_square: &[f64]) -> Vec<usize> {
     channel_mean_square
         .iter()
         .enumerate()
-        .filter(|&(_, &ms)| !(ms >= SILENT_MEAN_SQUARE))
+        .filter(|&(_, &ms)| ms.is_nan() || ms < SILENT_MEAN_SQUARE)
         .map(|(channel, _)| channel)
         .collect()
 }

@@ -226,7 +226,7 @@ impl FormatChecker {
             .unwrap_or(0);
         let w_channel = self.hypotheses[assumed_index].plan.source_channel(0);
         let w_power = input.raw_covariance[w_channel * channels + w_channel];
-        if !(w_power > 0.0) {
+        if w_power <= 0.0 {
             // Without W nothing is relative to anything; only channel health is reported.
             result.duplicate_channels = channel_health::duplicate_pairs(
                 input.raw_covariance,
@@ -412,7 +412,7 @@ impl FormatChecker {
         let mut by_size: Vec<usize> = (0..channels).collect();
         by_size.sort_by(|&a, &b| eigen.eigenvalues[b].total_cmp(&eigen.eigenvalues[a]));
         let largest = eigen.eigenvalues[by_size[0]];
-        if !(largest > 0.0) || !(trace > 0.0) {
+        if largest.is_nan() || largest <= 0.0 || trace.is_nan() || trace <= 0.0 {
             return (0.0, 0.0);
         }
         // Floor of an isotropic diffuse part: white in N3D coordinates, so the median
