@@ -171,7 +171,8 @@ mod tests {
             vector.iter_mut().for_each(|v| *v /= -norm);
             let mut search = SteeringFitSearch::new(order);
             let (fit, unit) = search.fit(&vector, order);
-            assert!((fit - 1.0).abs() < 1e-8, "order {order}: fit {fit}");
+            // The search stops at a 1e-4 rad step; at order 7 that leaves 1 − fit ≈ 1e-7.
+            assert!((fit - 1.0).abs() < 1e-6, "order {order}: fit {fit}");
             let found = Direction::from_cartesian(unit);
             assert!(found.angle_to_deg(&direction) < 0.05, "{found:?}");
         }
