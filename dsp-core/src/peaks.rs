@@ -136,6 +136,15 @@ impl PeakFinder {
     fn is_local_maximum(&self, map: &[f32], row: usize, col: usize, value: f32) -> bool {
         let (width, height) = (self.grid.width(), self.grid.height());
         let here = row * width + col;
+        if row > 0 && row + 1 < height && col > 0 && col + 1 < width {
+            // Interior fast path (no wrapping). NaN neighbours compare false, as −∞ would.
+            // Ties go to the earlier pixel: earlier neighbours win on ≥, later ones on >.
+            let (up, down) = (here - width, here + width);
+            let earlier = [map[up - 1], map[up], map[up + 1], map[here - 1]];
+            let later = [map[here + 1], map[down - 1], map[down], map[down + 1]];
+            return earlier.iter().all(|&n| n < value || n.is_nan())
+                && later.iter().all(|&n| n <= value || n.is_nan());
+        }
         for dr in -1isize..=1 {
             for dc in -1isize..=1 {
                 if dr == 0 && dc == 0 {

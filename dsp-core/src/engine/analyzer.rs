@@ -13,6 +13,7 @@ use super::maps::MapMaker;
 use super::snapshot::*;
 use crate::covariance::{BAND_COUNT, BandCovariance};
 use crate::format::{AmbiFormat, ConversionPlan, FormatError};
+use crate::format_check::{FormatCheckInput, FormatChecker};
 use crate::loudness::LoudnessMeter;
 use crate::meters::{ChannelMeterConfig, ChannelMeters, LEVEL_FLOOR_DB};
 use crate::sh::order_degree;
@@ -91,6 +92,7 @@ pub struct Analyzer {
     frames_since_map: usize,
     frames_since_check: usize,
     maps: MapMaker,
+    checker: FormatChecker,
     w_scratch: Vec<f32>,
     r_sn3d: Vec<f64>,
     programme: ProgrammeSums,
@@ -124,6 +126,8 @@ impl Analyzer {
         let m = layout.spatial_channels;
         let covariance = BandCovariance::new(m, setup.sample_rate_hz, settings.band_edges_hz);
         let grid = grid_for(settings.grid_step_deg)?;
+        let checker =
+            FormatChecker::new(layout.order).map_err(|e| EngineError::Settings(e.to_string()))?;
         let maps = MapMaker::new(layout.order, grid, settings.max_sources)
             .map_err(EngineError::Settings)?;
         Ok(Self {
@@ -140,6 +144,7 @@ impl Analyzer {
             frames_since_map: 0,
             frames_since_check: usize::MAX / 2,
             maps,
+            checker,
             w_scratch: Vec::new(),
             r_sn3d: vec![0.0; m * m],
             programme: ProgrammeSums {
@@ -259,7 +264,8 @@ impl Analyzer {
             (self.setup.sample_rate_hz / self.settings.map_rate_hz.max(0.01)).max(1.0) as usize;
         let ready = self.frames_since_map >= map_interval;
         if ready {
-            self.frames_since_map = 0;
+            // Keep the remainder so the average rate is the requested one.
+            self.frames_since_map = (self.frames_since_map - map_interval).min(map_interval);
             self.build_snapshot();
         }
         self.load_busy_s += started.elapsed().as_secs_f64();
@@ -300,11 +306,9 @@ impl Analyzer {
         for (c, samples) in block.iter().enumerate().take(self.setup.channels) {
             let (mut s, mut s2) = (0.0f64, 0.0f64);
             for &x in samples.iter() {
-                if x.is_finite() {
-                    let x = x as f64;
-                    s += x;
-                    s2 += x * x;
-                }
+                let x = if x.is_finite() { f64::from(x) } else { 0.0 };
+                s += x;
+                s2 += x * x;
             }
             self.programme.sum[c] += s;
             self.programme.sum_squares[c] += s2;
@@ -479,9 +483,14 @@ impl Analyzer {
         };
         let cov: Vec<f64> = raw.iter().map(|v| v * scale).collect();
         let mean_square = self.programme_mean_square();
-        // TEMPORARY until the format check module lands.
-        let _ = (&cov, &mean_square[..m]);
-        self.snapshot.format_check = FormatCheck::default();
+        let input = FormatCheckInput {
+            raw_covariance: &cov,
+            order: self.layout.order,
+            assumed: self.settings.assumed_format,
+            channel_mean_square: &mean_square[..m],
+            frames_seen: self.programme.frames,
+        };
+        self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
     }
 
     /// Mean square of every input channel over the whole programme.

@@ -165,19 +165,14 @@ impl AudioSide {
 
     fn count_peaks(&self, channels: &[&[f32]], frames: usize) {
         for (c, samples) in channels.iter().take(self.channels).enumerate() {
-            let mut peak = 0.0f32;
-            let mut clipped = 0u64;
-            for &x in &samples[..frames.min(samples.len())] {
-                let a = x.abs();
-                // NaN compares false: it neither raises the peak nor counts as clipped here; the
-                // analysis side counts invalid samples.
-                if a > peak {
-                    peak = a;
-                }
-                if a >= 1.0 {
-                    clipped += 1;
-                }
-            }
+            let samples = &samples[..frames.min(samples.len())];
+            // NaN neither raises the peak nor counts as clipped (NaN ≥ 1 is false); the
+            // analysis side counts invalid samples.
+            let peak = crate::meters::abs_max(samples);
+            let clipped = samples
+                .iter()
+                .map(|x| u64::from(x.abs() >= 1.0))
+                .sum::<u64>();
             self.counters.peaks[c].fetch_max(peak, Ordering::AcqRel);
             if clipped > 0 {
                 self.counters.clipped_samples[c].fetch_add(clipped, Ordering::Relaxed);

@@ -106,12 +106,13 @@ impl MapMaker {
                 };
             }
         }
-        let max = self
-            .linear
-            .iter()
-            .copied()
-            .filter(|v| v.is_finite())
-            .fold(0.0f32, f32::max);
+        // Plans produce finite values from finite input; clear anything else before reducing.
+        for v in &mut self.linear {
+            if !v.is_finite() {
+                *v = 0.0;
+            }
+        }
+        let max = crate::meters::abs_max(&self.linear);
         let relative = matches!(scale, MapScale::RelativeDb) || matches!(method, MapMethod::Music);
         let reference = if relative {
             max.max(f32::MIN_POSITIVE)
@@ -121,16 +122,16 @@ impl MapMaker {
         image.width = self.grid.width();
         image.height = self.grid.height();
         image.values_db.resize(self.grid.len(), MAP_FLOOR_DB);
-        let mut max_db = MAP_FLOOR_DB;
+        let inverse_reference = 1.0 / reference;
+        // Negative values (round-off of the expansion) clamp to the floor like zeros.
         for (d, &v) in image.values_db.iter_mut().zip(&self.linear) {
-            let db = if v > 0.0 {
-                (10.0 * (v / reference).log10()).max(MAP_FLOOR_DB)
-            } else {
-                MAP_FLOOR_DB
-            };
-            *d = db;
-            max_db = max_db.max(db);
+            *d = fast_db(v * inverse_reference).max(MAP_FLOOR_DB);
         }
+        let max_db = if max > 0.0 {
+            fast_db(max * inverse_reference).max(MAP_FLOOR_DB)
+        } else {
+            MAP_FLOOR_DB
+        };
         image.max_db = max_db;
         image.scale = if relative {
             MapScale::RelativeDb
@@ -214,6 +215,21 @@ impl MapMaker {
     }
 }
 
+/// 10·log10(x) for normal x > 0, within 1e-4 dB: log2 from the float's exponent plus a short
+/// atanh series on the mantissa. About 5× cheaper than `log10`, and a map has ~65 000 pixels.
+fn fast_db(x: f32) -> f32 {
+    // Below the smallest normal float the formula would misread the exponent.
+    let x = x.max(f32::MIN_POSITIVE);
+    let bits = x.to_bits();
+    let exponent = ((bits >> 23) & 0xff) as i32 - 127;
+    let mantissa = f32::from_bits((bits & 0x007f_ffff) | 0x3f80_0000);
+    let t = (mantissa - 1.0) / (mantissa + 1.0);
+    let t2 = t * t;
+    let ln_mantissa =
+        2.0 * t * (1.0 + t2 * (1.0 / 3.0 + t2 * (1.0 / 5.0 + t2 * (1.0 / 7.0 + t2 / 9.0))));
+    10.0 * std::f32::consts::LOG10_2 * (exponent as f32 + ln_mantissa * std::f32::consts::LOG2_E)
+}
+
 /// Number of eigenvalues (sorted descending, modified in place) that stand more than
 /// [`MUSIC_SIGNAL_FACTOR`] above the median; between 1 and M−1.
 pub fn signal_subspace_size(sorted_desc: &mut [f64]) -> usize {
@@ -227,4 +243,32 @@ pub fn signal_subspace_size(sorted_desc: &mut [f64]) -> usize {
         .filter(|&&l| l > MUSIC_SIGNAL_FACTOR * median)
         .count();
     count.clamp(1, m - 1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fast_db_matches_log10() {
+        let mut x = 1e-30f32;
+        while x < 1e30 {
+            let exact = 10.0 * (x as f64).log10();
+            assert!(
+                (fast_db(x) as f64 - exact).abs() < 1e-4,
+                "{x}: {} vs {exact}",
+                fast_db(x)
+            );
+            x *= 1.37;
+        }
+        assert!(fast_db(0.0) < MAP_FLOOR_DB && fast_db(-1.0) < MAP_FLOOR_DB);
+    }
+
+    #[test]
+    fn music_subspace_counts_eigenvalues_above_the_median() {
+        let mut l = vec![100.0, 50.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0];
+        assert_eq!(signal_subspace_size(&mut l), 2);
+        let mut flat = vec![1.0; 9];
+        assert_eq!(signal_subspace_size(&mut flat), 1);
+    }
 }

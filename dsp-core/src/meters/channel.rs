@@ -2,7 +2,7 @@
 
 use std::fmt;
 
-use super::true_peak::TruePeakMeter;
+use super::true_peak::{CHUNK, TruePeakMeter};
 use super::{LEVEL_FLOOR_DB, amplitude_to_db, mean_square_to_db};
 
 /// Settings of a [`ChannelMeters`] strip.
@@ -316,24 +316,37 @@ impl ChannelMeters {
     pub fn push(&mut self, input: &[&[f32]]) {
         let clip_threshold = self.config.clip_threshold;
         for (state, samples) in self.channels.iter_mut().zip(input) {
-            for &sample in samples.iter() {
-                let true_peak = state.true_peak.process_sample(sample);
-                if sample.is_finite() {
-                    let x = f64::from(sample);
-                    let magnitude = x.abs();
-                    let seg = &mut state.current;
-                    seg.sum_squares += x * x;
-                    seg.sum += x;
-                    seg.valid_count += 1;
-                    seg.sample_peak = seg.sample_peak.max(magnitude);
-                    if sample.abs() >= clip_threshold {
-                        state.clip_count += 1;
+            let mut offset = 0;
+            while offset < samples.len() {
+                // A piece never crosses a segment boundary, so the statistics loop is plain.
+                let room = self.segment_len - state.current_fill;
+                let n = room.min(samples.len() - offset).min(CHUNK);
+                let piece = &samples[offset..offset + n];
+                let true_peak = state.true_peak.push(piece);
+                let seg = &mut state.current;
+                // Sums run sample by sample into the segment, in stream order, so readings are
+                // bit-identical whatever the block sizes.
+                let (mut sum_squares, mut sum, mut peak) = (seg.sum_squares, seg.sum, 0.0f32);
+                let (mut valid, mut clips) = (0u64, 0u64);
+                for &sample in piece {
+                    if sample.is_finite() {
+                        let x = f64::from(sample);
+                        sum_squares += x * x;
+                        sum += x;
+                        valid += 1;
+                        peak = peak.max(sample.abs());
+                        clips += u64::from(sample.abs() >= clip_threshold);
                     }
-                } else {
-                    state.invalid_sample_count += 1;
                 }
-                state.current.true_peak = state.current.true_peak.max(true_peak);
-                state.current_fill += 1;
+                seg.sum_squares = sum_squares;
+                seg.sum = sum;
+                seg.valid_count += valid;
+                seg.sample_peak = seg.sample_peak.max(f64::from(peak));
+                seg.true_peak = seg.true_peak.max(true_peak);
+                state.clip_count += clips;
+                state.invalid_sample_count += n as u64 - valid;
+                state.current_fill += n;
+                offset += n;
                 if state.current_fill == self.segment_len {
                     finish_segment(state, self.segment_s, self.config.peak_hold_s);
                 }

@@ -38,3 +38,23 @@ pub fn mean_square_to_db(mean_square: f64) -> f64 {
         LEVEL_FLOOR_DB
     }
 }
+
+/// Largest |x| of `samples`, ignoring NaN (0 for an empty slice).
+///
+/// Eight independent lanes let the compiler vectorise: a single running `max` is a serial
+/// floating-point reduction, which it must not reorder.
+#[inline]
+pub fn abs_max(samples: &[f32]) -> f32 {
+    let mut lanes = [0.0f32; 8];
+    let mut chunks = samples.chunks_exact(8);
+    for chunk in &mut chunks {
+        for (l, &x) in lanes.iter_mut().zip(chunk) {
+            *l = l.max(x.abs());
+        }
+    }
+    let tail = chunks
+        .remainder()
+        .iter()
+        .fold(0.0f32, |m, &x| m.max(x.abs()));
+    lanes.iter().fold(tail, |m, &l| m.max(l))
+}
