@@ -3,6 +3,7 @@
 //! The audio path is a pure pass-through: the host's buffer is never written. Analysis lives in
 //! `fieldglass-dsp`; this crate wires it to the plugin formats and (later) the editor.
 
+pub mod scan;
 pub mod wav;
 
 use nice_plug::prelude::*;

@@ -1,0 +1,623 @@
+//! The scan itself: a stream of blocks through [`Analyzer`], then whole-file figures.
+//!
+//! Memory stays constant in the file length: samples go through one block of
+//! [`BLOCK_FRAMES`] frames per channel; only the timeline (a few numbers per
+//! [`TIMELINE_RATE_HZ`]-th of a second) grows, and it is thinned when it gets long.
+
+use super::CliError;
+use super::progress::Progress;
+use crate::wav::{Container, SampleFormat, WavReader};
+use fieldglass_dsp::engine::findings::collect_findings;
+use fieldglass_dsp::engine::{
+    AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
+    Snapshot, SourceReading, StreamSetup,
+};
+use fieldglass_dsp::format::{AmbiFormat, ConversionPlan, Normalization};
+use fieldglass_dsp::format_check::score_constants::EFFECTIVE_ORDER_FLOOR_DB;
+use fieldglass_dsp::scene::{DemoScene, SceneConfig};
+use fieldglass_dsp::sphere::Direction;
+use std::path::PathBuf;
+use std::time::Instant;
+
+/// Frames per channel read and analysed at a time.
+pub const BLOCK_FRAMES: usize = 4096;
+/// Snapshots per second of audio taken for the timeline of the strongest direction.
+pub const TIMELINE_RATE_HZ: f64 = 4.0;
+/// Grid step of the live maps behind the timeline, degrees (coarse: only the peak is used).
+pub const TIMELINE_GRID_STEP_DEG: f64 = 3.0;
+/// Grid step of the whole-programme maps in the report, degrees.
+pub const REPORT_GRID_STEP_DEG: f64 = 1.0;
+/// The timeline is halved (every second point dropped) when it reaches this many points, so a
+/// very long file keeps a bounded timeline (8192 points = 34 min at 4 Hz before thinning).
+pub const TIMELINE_MAX_POINTS: usize = 8192;
+/// Mean square below which a channel counts as silent over the whole file (−120 dBFS), the
+/// engine's threshold.
+pub const SILENT_MEAN_SQUARE: f64 = fieldglass_dsp::engine::analyzer::SILENT_MEAN_SQUARE;
+
+/// What to scan.
+#[derive(Clone, Debug, PartialEq)]
+pub enum ScanInput {
+    /// A WAV / RF64 / BW64 file.
+    File(PathBuf),
+    /// The built-in demo scene, rendered on the fly.
+    Demo {
+        order: usize,
+        seconds: f64,
+        sample_rate_hz: f64,
+        format: AmbiFormat,
+    },
+}
+
+/// How to scan.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ScanOptions {
+    /// The format the file is read as (the user's choice; the format check only advises).
+    pub assumed: AmbiFormat,
+    pub method: MapMethod,
+    /// Edges between the low/mid and mid/high bands, Hz.
+    pub band_edges_hz: [f64; 2],
+    /// Over-omni tolerance, dB.
+    pub over_omni_tolerance_db: f64,
+    /// Show a progress bar on stderr (only if stderr is a terminal and the input is long).
+    pub progress: bool,
+}
+
+impl Default for ScanOptions {
+    fn default() -> Self {
+        let engine = AnalysisSettings::default();
+        Self {
+            assumed: AmbiFormat::ACN_SN3D,
+            method: MapMethod::MaxRe,
+            band_edges_hz: engine.band_edges_hz,
+            over_omni_tolerance_db: engine.over_omni_tolerance_db,
+            progress: false,
+        }
+    }
+}
+
+/// What was scanned.
+#[derive(Clone, Debug, PartialEq)]
+pub struct InputInfo {
+    /// The file path, or `None` for the demo scene.
+    pub path: Option<PathBuf>,
+    /// Human description ("48000 Hz, 16 channels, 24-bit PCM, RF64" or the demo scene).
+    pub description: String,
+    pub channels: usize,
+    pub sample_rate_hz: f64,
+    pub frames: u64,
+    /// "pcm16", "pcm24", "pcm32", "float32", … ; "float32" for the demo.
+    pub sample_format: String,
+    /// "riff", "rf64", "bw64" or "demo".
+    pub container: String,
+}
+
+impl InputInfo {
+    pub fn duration_s(&self) -> f64 {
+        self.frames as f64 / self.sample_rate_hz
+    }
+
+    /// Path for messages, or "demo scene".
+    pub fn display_name(&self) -> String {
+        match &self.path {
+            Some(p) => p.display().to_string(),
+            None => "demo scene".to_string(),
+        }
+    }
+}
+
+/// Whole-file figures of one input channel.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelSummary {
+    /// Index in the file (0-based).
+    pub index: usize,
+    /// ACN index it carries under the assumed format; `None` for an extra channel.
+    pub acn: Option<usize>,
+    pub order: Option<usize>,
+    pub degree: Option<i32>,
+    /// Highest sample peak over the file, dBFS (raw, as stored).
+    pub peak_dbfs: f64,
+    /// Highest true peak over the file, dBTP (raw).
+    pub true_peak_dbtp: f64,
+    /// RMS over the file, dBFS (raw).
+    pub rms_dbfs: f64,
+    /// RMS over the file after conversion to SN3D, dBFS (what is compared with W).
+    pub sn3d_rms_dbfs: f64,
+    pub clipped_samples: u64,
+    pub invalid_samples: u64,
+    /// Mean over the file, linear full scale.
+    pub dc_offset: f64,
+    /// Whole-file SN3D level above W's by more than the tolerance.
+    pub over_omni: bool,
+    /// Below −120 dBFS over the whole file.
+    pub silent: bool,
+}
+
+impl ChannelSummary {
+    pub fn is_extra(&self) -> bool {
+        self.acn.is_none()
+    }
+
+    /// True when the channel table should highlight the row.
+    pub fn needs_attention(&self) -> bool {
+        self.clipped_samples > 0 || self.invalid_samples > 0 || self.over_omni || self.silent
+    }
+}
+
+/// Whole-programme picture of one band.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BandResult {
+    pub band: Band,
+    /// Band limits, Hz.
+    pub range_hz: [f64; 2],
+    pub map: MapImage,
+    /// Strongest first, levels relative to the strongest.
+    pub sources: Vec<SourceReading>,
+    pub diffuseness: Option<f64>,
+    /// Mean square of W in the band, dBFS.
+    pub w_level_dbfs: f64,
+}
+
+/// Strongest direction of the live map at one moment.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TimelinePoint {
+    pub time_s: f64,
+    /// `None` when the map had no peak (silence).
+    pub direction: Option<Direction>,
+    /// W's short-window RMS (SN3D), dBFS.
+    pub w_rms_dbfs: f64,
+}
+
+/// Everything a scan found.
+#[derive(Clone, Debug)]
+pub struct ScanResult {
+    pub input: InputInfo,
+    pub layout: ChannelLayout,
+    pub options: ScanOptions,
+    /// The engine's snapshot at the end of the file (W loudness, format check).
+    pub snapshot: Snapshot,
+    /// Per input channel, in file order (spatial first, then extra channels).
+    pub channels: Vec<ChannelSummary>,
+    /// Energy per order relative to W under the assumed format, dB, indexed [order].
+    pub order_balance_db: Vec<f64>,
+    /// Highest order that carries energy.
+    pub effective_order: usize,
+    /// Full, low, mid, high.
+    pub bands: Vec<BandResult>,
+    pub timeline: Vec<TimelinePoint>,
+    /// Whole-file findings, most severe first.
+    pub findings: Vec<Finding>,
+    /// Wall-clock time of the analysis, seconds.
+    pub analysis_s: f64,
+}
+
+impl ScanResult {
+    pub fn band(&self, band: Band) -> Option<&BandResult> {
+        self.bands.iter().find(|b| b.band == band)
+    }
+}
+
+/// Where blocks come from.
+enum Source {
+    File(WavReader<std::io::BufReader<std::fs::File>>),
+    Demo { scene: DemoScene, remaining: u64 },
+}
+
+impl Source {
+    fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
+        match self {
+            Source::File(reader) => reader
+                .read_planar(buffers, BLOCK_FRAMES)
+                .map_err(|e| CliError::input(format!("cannot read '{name}': {e}"))),
+            Source::Demo { scene, remaining } => {
+                let n = (*remaining).min(BLOCK_FRAMES as u64) as usize;
+                for b in buffers.iter_mut() {
+                    b.resize(n, 0.0);
+                }
+                let mut refs: Vec<&mut [f32]> =
+                    buffers.iter_mut().map(|b| b.as_mut_slice()).collect();
+                if n > 0 {
+                    scene.render(&mut refs);
+                }
+                *remaining -= n as u64;
+                Ok(n)
+            }
+        }
+    }
+}
+
+fn describe_sample_format(format: SampleFormat, bits: u16) -> String {
+    match format {
+        SampleFormat::Int => format!("pcm{bits}"),
+        SampleFormat::Float => format!("float{bits}"),
+    }
+}
+
+fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
+    match input {
+        ScanInput::File(path) => {
+            let name = path.display().to_string();
+            let reader = WavReader::open(path)
+                .map_err(|e| CliError::input(format!("cannot read '{name}': {e}")))?;
+            let spec = reader.spec();
+            let container = match reader.container() {
+                Container::Riff => "riff",
+                Container::Rf64 => "rf64",
+                Container::Bw64 => "bw64",
+            };
+            let sample_format = describe_sample_format(spec.sample_format, spec.bits_per_sample);
+            let info = InputInfo {
+                path: Some(path.clone()),
+                description: format!(
+                    "{} Hz, {} channels, {}, {}{}",
+                    spec.sample_rate,
+                    spec.channels,
+                    sample_format,
+                    container.to_uppercase(),
+                    if spec.channel_mask.is_some() {
+                        " (extensible)"
+                    } else {
+                        ""
+                    }
+                ),
+                channels: spec.channels as usize,
+                sample_rate_hz: spec.sample_rate as f64,
+                frames: reader.frames(),
+                sample_format,
+                container: container.to_string(),
+            };
+            Ok((Source::File(reader), info))
+        }
+        ScanInput::Demo {
+            order,
+            seconds,
+            sample_rate_hz,
+            format,
+        } => {
+            let config = SceneConfig {
+                order: *order,
+                format: *format,
+                sample_rate_hz: *sample_rate_hz,
+                ..SceneConfig::default()
+            };
+            let scene = DemoScene::new(config)
+                .map_err(|e| CliError::input(format!("cannot build the demo: {e}")))?;
+            let frames = (seconds.max(0.0) * sample_rate_hz).round() as u64;
+            let info = InputInfo {
+                path: None,
+                description: format!(
+                    "demo scene (harbour-front terrace at dusk), order {order}, {}, {sample_rate_hz} Hz, {seconds} s",
+                    format.human_name()
+                ),
+                channels: scene.channels(),
+                sample_rate_hz: *sample_rate_hz,
+                frames,
+                sample_format: "float32".to_string(),
+                container: "demo".to_string(),
+            };
+            Ok((
+                Source::Demo {
+                    scene,
+                    remaining: frames,
+                },
+                info,
+            ))
+        }
+    }
+}
+
+/// Scans `input`. Errors carry the exit code: 2 for anything about the input.
+pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliError> {
+    let started = Instant::now();
+    let (mut source, info) = open(input)?;
+    let name = info.display_name();
+    let layout = ChannelLayout::from_channel_count(info.channels)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    if info.frames == 0 {
+        return Err(CliError::input(format!(
+            "cannot scan '{name}': it holds no audio frames"
+        )));
+    }
+    let [low_hz, high_hz] = options.band_edges_hz;
+    let nyquist_hz = info.sample_rate_hz / 2.0;
+    if !(low_hz > 0.0 && low_hz < high_hz && high_hz < nyquist_hz) {
+        return Err(CliError::input(format!(
+            "cannot scan '{name}': band edges {low_hz}-{high_hz} Hz must satisfy 0 < low < high < {nyquist_hz} Hz (half the sample rate)"
+        )));
+    }
+    let settings = AnalysisSettings {
+        assumed_format: options.assumed,
+        method: options.method,
+        band: Band::Full,
+        band_edges_hz: options.band_edges_hz,
+        map_rate_hz: TIMELINE_RATE_HZ,
+        grid_step_deg: TIMELINE_GRID_STEP_DEG,
+        over_omni_tolerance_db: options.over_omni_tolerance_db,
+        time_constant_ms: 1000.0 / TIMELINE_RATE_HZ,
+        max_sources: 1,
+        ..AnalysisSettings::default()
+    };
+    let setup = StreamSetup {
+        sample_rate_hz: info.sample_rate_hz,
+        channels: info.channels,
+    };
+    let mut analyzer = Analyzer::new(setup, settings)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    analyzer.reserve_block(BLOCK_FRAMES);
+
+    let mut progress = Progress::new(info.frames, info.sample_rate_hz, options.progress);
+    let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); info.channels];
+    let mut timeline = Vec::new();
+    let mut timeline_stride = 1usize;
+    let mut snapshots_seen = 0usize;
+    let mut frames_read = 0u64;
+    loop {
+        let n = source.read(&mut buffers, &name)?;
+        if n == 0 {
+            break;
+        }
+        frames_read += n as u64;
+        let block: Vec<&[f32]> = buffers.iter().map(|b| &b[..n]).collect();
+        if analyzer.process(&block) {
+            snapshots_seen += 1;
+            if snapshots_seen.is_multiple_of(timeline_stride) {
+                timeline.push(timeline_point(analyzer.snapshot()));
+                if timeline.len() >= TIMELINE_MAX_POINTS {
+                    timeline = timeline.into_iter().step_by(2).collect();
+                    timeline_stride *= 2;
+                }
+            }
+        }
+        progress.advance(n as u64);
+    }
+    progress.finish();
+    if frames_read == 0 {
+        return Err(CliError::input(format!(
+            "cannot scan '{name}': it holds no audio frames"
+        )));
+    }
+
+    let mut snapshot = analyzer.finish().clone();
+    let conversion = ConversionPlan::to_sn3d(options.assumed, layout.order)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    let mean_square = analyzer.programme_mean_square();
+    let mean = analyzer.programme_mean();
+    let channels = channel_summaries(
+        &snapshot,
+        &conversion,
+        &layout,
+        &mean_square,
+        &mean,
+        options.over_omni_tolerance_db,
+    );
+    let own_balance = order_balance_from_levels(&conversion, layout.order, &mean_square);
+    let check = &snapshot.format_check;
+    let order_balance_db = if check.order_balance_db.len() == layout.order + 1 {
+        check.order_balance_db.clone()
+    } else {
+        own_balance.clone()
+    };
+    let effective_order = if check.ready {
+        check.effective_order
+    } else {
+        (0..=layout.order)
+            .rev()
+            .find(|&n| own_balance[n] > EFFECTIVE_ORDER_FLOOR_DB)
+            .unwrap_or(0)
+    };
+
+    // Whole-file findings: the engine's rules applied to whole-file channel figures.
+    patch_whole_file_status(&mut snapshot, &channels);
+    let mut findings = collect_findings(&snapshot, analyzer.settings());
+    if !check_ready_for_order(&snapshot) && effective_order < layout.order {
+        findings.push(order_deficit(layout.order, effective_order));
+    }
+    findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
+
+    // Whole-programme maps per band on a finer grid.
+    let report_settings = AnalysisSettings {
+        grid_step_deg: REPORT_GRID_STEP_DEG,
+        max_sources: 8,
+        ..*analyzer.settings()
+    };
+    analyzer
+        .apply_settings(report_settings)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    let edges = snapshot.band_edges_hz;
+    let bands = Band::ALL
+        .into_iter()
+        .map(|band| {
+            let (map, sources) =
+                analyzer.integrated_map(band, options.method, MapScale::RelativeDb);
+            let intensity = analyzer.integrated_intensity(band);
+            let range_hz = match band {
+                Band::Full => [0.0, nyquist_hz],
+                Band::Low => [0.0, edges[0]],
+                Band::Mid => [edges[0], edges[1]],
+                Band::High => [edges[1], nyquist_hz],
+            };
+            BandResult {
+                band,
+                range_hz,
+                map,
+                sources,
+                diffuseness: intensity.diffuseness,
+                w_level_dbfs: intensity.w_level_dbfs,
+            }
+        })
+        .collect();
+
+    Ok(ScanResult {
+        input: InputInfo {
+            frames: frames_read,
+            ..info
+        },
+        layout,
+        options,
+        snapshot,
+        channels,
+        order_balance_db,
+        effective_order,
+        bands,
+        timeline,
+        findings,
+        analysis_s: started.elapsed().as_secs_f64(),
+    })
+}
+
+fn check_ready_for_order(snapshot: &Snapshot) -> bool {
+    snapshot.format_check.ready
+}
+
+fn order_deficit(order: usize, effective: usize) -> Finding {
+    Finding {
+        severity: fieldglass_dsp::engine::Severity::Warning,
+        code: fieldglass_dsp::engine::FindingCode::OrderDeficit,
+        message: format!(
+            "the stream is order {order} but only orders up to {effective} carry energy"
+        ),
+        channels: Vec::new(),
+    }
+}
+
+fn timeline_point(snapshot: &Snapshot) -> TimelinePoint {
+    TimelinePoint {
+        time_s: snapshot.time_s,
+        direction: snapshot.sources.first().map(|s| s.direction),
+        w_rms_dbfs: snapshot.omni.rms_dbfs,
+    }
+}
+
+fn level_db(mean_square: f64) -> f64 {
+    if mean_square > 0.0 {
+        10.0 * mean_square.log10()
+    } else {
+        f64::NEG_INFINITY
+    }
+}
+
+fn channel_summaries(
+    snapshot: &Snapshot,
+    conversion: &ConversionPlan,
+    layout: &ChannelLayout,
+    mean_square: &[f64],
+    mean: &[f64],
+    tolerance_db: f64,
+) -> Vec<ChannelSummary> {
+    let m = layout.spatial_channels;
+    let mut acn_of_input = vec![None; layout.channels()];
+    for acn in 0..m {
+        acn_of_input[conversion.source_channel(acn)] = Some(acn);
+    }
+    let sn3d_mean_square = |c: usize| -> f64 {
+        match acn_of_input[c] {
+            Some(acn) => mean_square[c] * conversion.gain(acn).powi(2),
+            None => mean_square[c],
+        }
+    };
+    let w_input = conversion.source_channel(0);
+    let w_sn3d = sn3d_mean_square(w_input);
+    let w_active = w_sn3d > SILENT_MEAN_SQUARE;
+    (0..layout.channels())
+        .map(|c| {
+            let reading = snapshot
+                .channel_status
+                .get(c)
+                .map(|s| s.reading)
+                .unwrap_or_default();
+            let acn = acn_of_input[c];
+            let sn3d = sn3d_mean_square(c);
+            let over_omni = acn.is_some_and(|a| a != 0)
+                && w_active
+                && level_db(sn3d) > level_db(w_sn3d) + tolerance_db;
+            ChannelSummary {
+                index: c,
+                acn,
+                order: acn.map(|a| fieldglass_dsp::sh::order_degree(a).0),
+                degree: acn.map(|a| fieldglass_dsp::sh::order_degree(a).1),
+                peak_dbfs: reading.max_sample_peak_dbfs,
+                true_peak_dbtp: reading.max_true_peak_dbtp,
+                rms_dbfs: level_db(mean_square[c]),
+                sn3d_rms_dbfs: level_db(sn3d),
+                clipped_samples: reading.clip_count,
+                invalid_samples: reading.invalid_sample_count,
+                dc_offset: mean[c],
+                over_omni,
+                silent: mean_square[c] < SILENT_MEAN_SQUARE,
+            }
+        })
+        .collect()
+}
+
+/// Per-order energy relative to W from whole-file channel levels under the assumed format:
+/// E_n = Σ_m ms_sn3d(n, m) / ms_sn3d(W), dB.
+pub fn order_balance_from_levels(
+    conversion: &ConversionPlan,
+    order: usize,
+    mean_square: &[f64],
+) -> Vec<f64> {
+    let sn3d =
+        |acn: usize| mean_square[conversion.source_channel(acn)] * conversion.gain(acn).powi(2);
+    let w = sn3d(0);
+    (0..=order)
+        .map(|n| {
+            if n == 0 {
+                return 0.0;
+            }
+            let energy: f64 = (n * n..(n + 1) * (n + 1)).map(sn3d).sum();
+            if w > 0.0 && energy > 0.0 {
+                10.0 * (energy / w).log10()
+            } else {
+                -300.0
+            }
+        })
+        .collect()
+}
+
+/// Expected order balance (dB, indexed [order]) of an isotropic incoherent field stored in
+/// `content` and read as `assumed`: E_n = Σ_m (k_c/k_a)²(acn) / (2n+1) ÷ (k_c/k_a)²(W), with k
+/// the gain from SN3D of each normalisation (each SN3D component of order n carries 1/(2n+1)
+/// of W's energy in such a field, by the addition theorem). `None` where a normalisation is not
+/// defined (maxN above order 3).
+pub fn expected_balance_db(
+    content: Normalization,
+    assumed: Normalization,
+    order: usize,
+) -> Vec<Option<f64>> {
+    let ratio = |acn: usize| -> Option<f64> {
+        Some(content.gain_from_sn3d(acn)? / assumed.gain_from_sn3d(acn)?)
+    };
+    let Some(w) = ratio(0) else {
+        return vec![None; order + 1];
+    };
+    (0..=order)
+        .map(|n| {
+            let mut energy = 0.0;
+            for acn in n * n..(n + 1) * (n + 1) {
+                energy += ratio(acn)?.powi(2);
+            }
+            Some(10.0 * (energy / (2 * n + 1) as f64 / (w * w)).log10())
+        })
+        .collect()
+}
+
+/// Puts whole-file figures into the snapshot's channel status so that the engine's finding
+/// rules judge the whole file rather than its last window.
+fn patch_whole_file_status(snapshot: &mut Snapshot, channels: &[ChannelSummary]) {
+    for (status, summary) in snapshot.channel_status.iter_mut().zip(channels) {
+        status.over_omni = summary.over_omni;
+        status.reading.over_omni = summary.over_omni;
+        status.silent = summary.silent;
+        status.reading.dc_offset = summary.dc_offset;
+    }
+    let w_silent = channels
+        .iter()
+        .find(|c| c.acn == Some(0))
+        .is_none_or(|w| w.silent);
+    if !w_silent {
+        snapshot.format_check.silent_channels = channels
+            .iter()
+            .filter(|c| c.silent && !c.is_extra())
+            .map(|c| c.index)
+            .collect();
+    }
+}
