@@ -4,14 +4,23 @@
 //! `cargo run --release -p fieldglass-dsp --example engine_speed -- --order 7 [--seconds 20]`
 //!
 //! Settings: 48 kHz, 512-frame host buffers, 30 map updates per second, 1° grid, max-rE. Both
-//! sides run on this one thread, one after the other, so each is timed alone. The last line is
+//! sides run on this one thread, one after the other, so each is timed alone, in thread CPU
+//! time. The last line is
 //! `order N: analysis A% of one core, audio side B% of one core`.
 
 use fieldglass_dsp::engine::handoff::handoff;
 use fieldglass_dsp::engine::{AnalysisSettings, Analyzer, MapMethod, StreamSetup};
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use std::process::ExitCode;
-use std::time::{Duration, Instant};
+use std::time::Duration;
+
+/// CPU time of this thread (not wall time, so other load on the machine does not count).
+fn thread_cpu_time() -> Duration {
+    let mut t = libc::timespec { tv_sec: 0, tv_nsec: 0 };
+    // SAFETY: clock_gettime writes one timespec into the valid pointer given.
+    unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut t) };
+    Duration::new(t.tv_sec as u64, t.tv_nsec as u32)
+}
 
 const SAMPLE_RATE_HZ: f64 = 48_000.0;
 const HOST_BUFFER: usize = 512;
@@ -94,9 +103,9 @@ fn main() -> ExitCode {
         let end = (start + HOST_BUFFER).min(total);
         refs.clear();
         refs.extend(rendered.iter().map(|c| &c[start..end]));
-        let t0 = Instant::now();
+        let t0 = thread_cpu_time();
         audio.push(&refs);
-        let t1 = Instant::now();
+        let t1 = thread_cpu_time();
         receiver.drain_with(|block| {
             let empty: &[f32] = &[];
             let mut block_refs = [empty; 64];
@@ -108,7 +117,7 @@ fn main() -> ExitCode {
             }
         });
         audio_time += t1 - t0;
-        analysis_time += t1.elapsed();
+        analysis_time += thread_cpu_time() - t1;
         start = end;
     }
     let audio_s = total as f64 / SAMPLE_RATE_HZ;
