@@ -487,7 +487,7 @@ pub fn order_balance_chart(balance_db: &[f64], assumed: AmbiFormat) -> Canvas {
                 continue;
             };
             let y = y_of(*e).round() as i64;
-            let xa = (cx + bar_w / 2.0 + 4.0 + k as f64 * 0.0).round() as i64;
+            let xa = (cx + bar_w / 2.0 + 4.0).round() as i64;
             let xb = xa + mark_w.round() as i64;
             match k {
                 0 => {

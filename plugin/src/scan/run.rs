@@ -285,7 +285,7 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
             let info = InputInfo {
                 path: None,
                 description: format!(
-                    "demo scene (harbour-front terrace at dusk), order {order}, {}, {sample_rate_hz} Hz, {seconds} s",
+                    "demo scene (harbour-front terrace at dusk), order {order}, {}, {sample_rate_hz} Hz",
                     format.human_name()
                 ),
                 channels: scene.channels(),
