@@ -360,12 +360,13 @@ fn clipped_samples_are_counted_and_fail_on_exits_3() {
     );
     assert!(String::from_utf8_lossy(&out.stderr).contains("clipping"));
     let clean = dir.path().join("clean.wav");
+    // Off-axis, so that no component is zero (a frontal source leaves Y and Z silent).
     write_float(
         &clean,
         &encode(
             1,
             AmbiFormat::ACN_SN3D,
-            &[(Direction::new(0.0, 0.0), 0.2)],
+            &[(Direction::new(30.0, 20.0), 0.2)],
             RATE as usize / 2,
         ),
     );
@@ -516,32 +517,38 @@ fn bad_inputs_exit_2_with_a_clear_message() {
     let dir = tmp();
     let p = |name: &str| dir.path().join(name);
     let good = valid_bytes(4, 1000);
-    assert_eq!(&good[36..40], b"data", "canonical 44-byte header expected");
+    // Start of the sample data: just after the "data" chunk id and its 32-bit size.
+    let data = good
+        .windows(4)
+        .position(|w| w == b"data")
+        .expect("data chunk")
+        + 8;
 
     std::fs::write(p("empty.wav"), b"").unwrap();
     assert_input_error(&p("empty.wav"), "empty");
 
-    std::fs::write(p("short-header.wav"), &good[..30]).unwrap();
+    std::fs::write(p("short-header.wav"), &good[..data / 2]).unwrap();
     assert_input_error(&p("short-header.wav"), "truncated");
 
-    std::fs::write(p("short-data.wav"), &good[..44 + 1000]).unwrap();
+    std::fs::write(p("short-data.wav"), &good[..data + 1000]).unwrap();
     assert_input_error(&p("short-data.wav"), "data");
 
     std::fs::write(p("text.wav"), b"this is not a sound file at all\n").unwrap();
     assert_input_error(&p("text.wav"), "riff");
 
-    let mut zero = good[..44].to_vec();
-    zero[40..44].copy_from_slice(&0u32.to_le_bytes());
-    zero[4..8].copy_from_slice(&36u32.to_le_bytes());
+    let mut zero = good[..data].to_vec();
+    zero[data - 4..data].copy_from_slice(&0u32.to_le_bytes());
+    let riff_size = (data - 8) as u32;
+    zero[4..8].copy_from_slice(&riff_size.to_le_bytes());
     std::fs::write(p("zero-frames.wav"), &zero).unwrap();
     assert_input_error(&p("zero-frames.wav"), "no audio frames");
 
     std::fs::write(p("seven.wav"), valid_bytes(7, 100)).unwrap();
     assert_input_error(&p("seven.wav"), "7 channels");
 
-    let mut huge = good[..44 + 64].to_vec();
+    let mut huge = good[..data + 64].to_vec();
     huge[4..8].copy_from_slice(&u32::MAX.wrapping_sub(8).to_le_bytes());
-    huge[40..44].copy_from_slice(&0xFFFF_FFF0u32.to_le_bytes());
+    huge[data - 4..data].copy_from_slice(&0xFFFF_FFF0u32.to_le_bytes());
     std::fs::write(p("huge.wav"), &huge).unwrap();
     assert_input_error(&p("huge.wav"), "data");
 
