@@ -309,7 +309,9 @@ pub fn palette_rgb(t: f32) -> [u8; 3] {
 /// Below the floor, NaN and an empty or inverted range give 0.
 pub fn scale_position(value_db: f32, floor_db: f32, ceiling_db: f32) -> f32 {
     let span_db = ceiling_db - floor_db;
-    if !(span_db > 0.0) || !(value_db > floor_db) {
+    // Written with partial_cmp so NaN (incomparable) takes the early return too.
+    let above = |a: f32, b: f32| a.partial_cmp(&b) == Some(std::cmp::Ordering::Greater);
+    if !above(span_db, 0.0) || !above(value_db, floor_db) {
         return 0.0;
     }
     ((value_db - floor_db) / span_db).min(1.0)

@@ -105,8 +105,10 @@ fn diffuse_field_has_diffuseness_near_one() {
     // Isotropic diffuse field → ψ → 1 (Pulkki 2007); with ~1 s of 21 ms frames the finite
     // averaging bias leaves ψ̂ a little below 1 (REFERENCES: about 1 − 0.7/√T).
     let signal = encode(1, AmbiFormat::ACN_SN3D, &[], Some((200, 0.05)), 2.0);
-    let mut settings = AnalysisSettings::default();
-    settings.time_constant_ms = 2000.0;
+    let settings = AnalysisSettings {
+        time_constant_ms: 2000.0,
+        ..Default::default()
+    };
     let a = run(&signal, settings, 1024);
     let psi = a.snapshot().intensity[Band::Full.index()]
         .diffuseness
@@ -126,9 +128,11 @@ fn every_method_peaks_on_two_sources() {
         1.0,
     );
     for method in MapMethod::ALL {
-        let mut settings = AnalysisSettings::default();
-        settings.method = method;
-        settings.time_constant_ms = 1000.0;
+        let settings = AnalysisSettings {
+            method,
+            time_constant_ms: 1000.0,
+            ..Default::default()
+        };
         let a = run(&signal, settings, 480);
         let s = a.snapshot();
         assert!(s.sources.len() >= 2, "{method:?}: {:?}", s.sources);
@@ -146,8 +150,10 @@ fn every_method_peaks_on_two_sources() {
 fn format_read_as_another_changes_the_picture_but_not_the_raw_meters() {
     let d = Direction::new(60.0, 0.0);
     let signal = encode(1, AmbiFormat::FUMA, &[(d, 0.3)], None, 0.5);
-    let mut right = AnalysisSettings::default();
-    right.assumed_format = AmbiFormat::FUMA;
+    let right = AnalysisSettings {
+        assumed_format: AmbiFormat::FUMA,
+        ..Default::default()
+    };
     let a = run(&signal, right, 256);
     assert!(a.snapshot().sources[0].direction.angle_to_deg(&d) < 1.5);
     // FuMa W carries −3.01 dB (maxN; REFERENCES §2): the omni reading (after conversion to

@@ -439,7 +439,7 @@ impl Analyzer {
                 }
                 None => reading.rms_dbfs,
             };
-            let w_active = w_level > LEVEL_FLOOR_DB + 1.0 && w_level > -100.0;
+            let w_active = w_level > -100.0;
             let over = acn.is_some_and(|a| a != 0) && w_active && sn3d_level > w_level + tolerance;
             let mut reading = reading;
             reading.over_omni = over;

@@ -186,7 +186,7 @@ impl MapMaker {
         let mut projector = DMatrix::<f64>::zeros(m, m);
         for &k in &order[signal..] {
             let u = eigen.eigenvectors.column(k);
-            projector += &u * u.transpose();
+            projector += u * u.transpose();
         }
         self.store_q_from_n3d(&projector);
     }

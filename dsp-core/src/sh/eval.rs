@@ -25,10 +25,7 @@ pub fn sn3d_legendre(order: usize, x: f64, out: &mut [f64]) {
 /// P_n^m = ((2n-1)·x·P_{n-1}^m − sqrt((n-1)²−m²)·P_{n-2}^m) / sqrt(n²−m²), with x = sin_el and
 /// s = cos_el.
 pub fn sn3d_legendre_sin_cos(order: usize, sin_el: f64, cos_el: f64, out: &mut [f64]) {
-    assert!(
-        out.len() >= tri(order, order) + 1,
-        "Legendre table too short"
-    );
+    assert!(out.len() > tri(order, order), "Legendre table too short");
     let x = sin_el.clamp(-1.0, 1.0);
     let s = cos_el.abs().min(1.0);
     out[0] = 1.0;
