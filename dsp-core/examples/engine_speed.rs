@@ -16,7 +16,10 @@ use std::time::Duration;
 
 /// CPU time of this thread (not wall time, so other load on the machine does not count).
 fn thread_cpu_time() -> Duration {
-    let mut t = libc::timespec { tv_sec: 0, tv_nsec: 0 };
+    let mut t = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
     // SAFETY: clock_gettime writes one timespec into the valid pointer given.
     unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut t) };
     Duration::new(t.tv_sec as u64, t.tv_nsec as u32)

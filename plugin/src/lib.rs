@@ -1,8 +1,13 @@
 //! Fieldglass plugin: a real-time monitor for higher-order Ambisonics.
 //!
-//! The audio path is a pure pass-through: the host's buffer is never written. Analysis lives in
-//! `fieldglass-dsp`; this crate wires it to the plugin formats and (later) the editor.
+//! The audio path is a pure pass-through: the host's buffer is never written. `activate()`
+//! starts the analysis engine (`fieldglass-dsp`) with its own thread; `process()` copies the
+//! buffer into the engine's pooled blocks and returns; the editor reads the latest snapshot.
 
+pub mod audio;
+pub mod editor;
+pub mod params;
+pub mod player;
 pub mod scan;
 pub mod wav;
 
@@ -24,12 +29,12 @@ const fn layout_for_order(order: u32) -> AudioIOLayout {
     }
 }
 
-#[derive(Params, Default)]
-pub struct FieldglassParams {}
+pub use params::FieldglassParams;
 
 #[derive(Default)]
 pub struct Fieldglass {
     params: Arc<FieldglassParams>,
+    engine: audio::EngineHost,
 }
 
 impl Plugin for Fieldglass {
@@ -49,7 +54,7 @@ impl Plugin for Fieldglass {
         layout_for_order(SUPPORTED_ORDERS[6]),
     ];
 
-    type Editor = ();
+    type Editor = nice_plug_egui::EguiEditor<editor::FieldglassApp>;
     type SysExMessage = ();
     type BackgroundTask = ();
 
@@ -57,13 +62,50 @@ impl Plugin for Fieldglass {
         self.params.clone()
     }
 
+    fn editor(&mut self, _async_executor: AsyncExecutor<Self>) -> Option<Self::Editor> {
+        let data = editor::EditorData::new(
+            self.engine.control().clone(),
+            self.engine.slot().clone(),
+            self.params.clone(),
+        );
+        editor::create_editor(data)
+    }
+
+    fn activate(
+        &mut self,
+        audio_io_layout: &AudioIOLayout,
+        buffer_config: &BufferConfig,
+        _context: &mut impl ActivateContext<Self>,
+    ) -> bool {
+        let channels = audio_io_layout
+            .main_input_channels
+            .map_or(0, |c| c.get() as usize);
+        self.params.apply_to(self.engine.control());
+        let started = self.engine.start(
+            buffer_config.sample_rate,
+            channels,
+            buffer_config.max_buffer_size as usize,
+        );
+        if let Err(e) = started {
+            // Audio still passes through; only the analysis is missing.
+            nice_log!("Fieldglass analysis not started: {e}");
+        }
+        true
+    }
+
+    fn deactivate(&mut self) {
+        self.engine.stop();
+    }
+
     fn process(
         &mut self,
-        _buffer: &mut Buffer,
+        buffer: &mut Buffer,
         _aux: &mut AuxiliaryBuffers,
         _context: &mut impl ProcessContext<Self>,
     ) -> ProcessStatus {
-        // Pass-through: the buffer already holds the input and is left untouched.
+        // Pass-through: the buffer already holds the input and is only read here.
+        audio::apply_parameters(&self.params, self.engine.control());
+        self.engine.push(buffer.as_slice_immutable());
         ProcessStatus::Normal
     }
 }

@@ -32,9 +32,72 @@ enum Command {
     Scan(ScanArgs),
     /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
     Demo(DemoArgs),
-    // ── `live` (the standalone app) goes here ────────────────────────────────────────────────
-    // #[cfg(feature = "standalone")]
-    // Live(LiveArgs),
+    /// Run the monitor as a standalone app (JACK, ALSA or a silent dummy device).
+    #[cfg(feature = "standalone")]
+    Live(LiveArgs),
+}
+
+/// Options of `fieldglass live`.
+#[cfg(feature = "standalone")]
+#[derive(Args, Debug)]
+struct LiveArgs {
+    /// Feed the analysis from `demo` (the demo scene) or a WAV file at real-time pace, instead
+    /// of the audio input; with it the dummy audio device is used unless --backend is given.
+    #[arg(long, value_name = "demo|FILE")]
+    play: Option<String>,
+    /// Ambisonic order of the layout (1-7); with --play FILE it follows the file.
+    #[arg(long, default_value_t = 3, value_parser = clap::value_parser!(u32).range(1..=7))]
+    order: u32,
+    /// Further options for the standalone wrapper (e.g. --backend jack, --sample-rate 96000).
+    #[arg(trailing_var_arg = true, allow_hyphen_values = true)]
+    standalone: Vec<String>,
+}
+
+#[cfg(feature = "standalone")]
+fn run_live(args: LiveArgs) -> Result<ExitCode, CliError> {
+    use fieldglass::player::{PlaySource, set_play_source};
+    let mut order = args.order;
+    if let Some(play) = &args.play {
+        if play == "demo" {
+            set_play_source(PlaySource::Demo);
+        } else {
+            let path = PathBuf::from(play);
+            let reader = fieldglass::wav::WavReader::open(&path)
+                .map_err(|e| CliError::input(format!("cannot read '{}': {e}", path.display())))?;
+            let channels = usize::from(reader.spec().channels);
+            order = fieldglass_dsp::sh::order_of_channel_count(channels)
+                .filter(|o| (1..=7).contains(o))
+                .ok_or_else(|| {
+                    CliError::input(format!(
+                        "'{}' has {channels} channels; live playback needs (N+1)² channels for order 1-7",
+                        path.display()
+                    ))
+                })? as u32;
+            set_play_source(PlaySource::File(path));
+        }
+    }
+    let mut wrapper_args = vec![
+        "fieldglass live".to_string(),
+        "--audio-layout".into(),
+        (order - 1).to_string(),
+    ];
+    if args.play.is_some()
+        && !args
+            .standalone
+            .iter()
+            .any(|a| a == "--backend" || a == "-b")
+    {
+        wrapper_args.extend(["--backend".to_string(), "dummy".to_string()]);
+    }
+    wrapper_args.extend(args.standalone);
+    let ok = nice_plug::prelude::nice_export_standalone_with_args::<fieldglass::Fieldglass, _>(
+        wrapper_args,
+    );
+    Ok(if ok {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(2)
+    })
 }
 
 /// Channel formats accepted on the command line.
@@ -278,8 +341,8 @@ fn main() -> ExitCode {
     let outcome = match cli.command {
         Command::Scan(args) => run_scan(args),
         Command::Demo(args) => run_demo(args),
-        // #[cfg(feature = "standalone")]
-        // Command::Live(args) => run_live(args),
+        #[cfg(feature = "standalone")]
+        Command::Live(args) => run_live(args),
     };
     match outcome {
         Ok(code) => code,

@@ -59,9 +59,9 @@ impl Canvas {
     pub fn blend(&mut self, x: i64, y: i64, colour: [u8; 3], alpha: f32) {
         if let Some(i) = self.index(x, y) {
             let a = alpha.clamp(0.0, 1.0);
-            for k in 0..3 {
-                let old = self.rgb[i + k] as f32;
-                self.rgb[i + k] = (old + (colour[k] as f32 - old) * a).round() as u8;
+            for (channel, &target) in self.rgb[i..i + 3].iter_mut().zip(&colour) {
+                let old = *channel as f32;
+                *channel = (old + (target as f32 - old) * a).round() as u8;
             }
         }
     }

@@ -397,6 +397,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
             .map(|n| expected_balance_db(n, assumed_norm, order))
             .collect();
     h.push_str("<table><tr><th>Order</th><th>Measured dB</th><th>SN3D expects</th><th>N3D expects</th><th>FuMa expects</th></tr>\n");
+    #[allow(clippy::needless_range_loop)] // n indexes the order and three tables at once
     for n in 1..=order {
         let measured = result.order_balance_db.get(n).copied();
         let _ = writeln!(

@@ -199,7 +199,10 @@ impl ScanResult {
 /// Where blocks come from.
 enum Source {
     File(WavReader<std::io::BufReader<std::fs::File>>),
-    Demo { scene: DemoScene, remaining: u64 },
+    Demo {
+        scene: Box<DemoScene>,
+        remaining: u64,
+    },
 }
 
 impl Source {
@@ -296,7 +299,7 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
             };
             Ok((
                 Source::Demo {
-                    scene,
+                    scene: Box::new(scene),
                     remaining: frames,
                 },
                 info,
