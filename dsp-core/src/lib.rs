@@ -21,6 +21,24 @@
 //! ## Order of use
 //! Build plans off the audio thread (they own all scratch memory), then execute them as often as
 //! needed without allocation.
+//!
+//! ## The engine (blocks in, snapshots out)
+//! - **Plugin (threaded).** `engine::Engine::start(StreamSetup { sample_rate_hz, channels },
+//!   max_block_frames, control, slot)` allocates the block pool, builds the `engine::Analyzer`
+//!   and starts its thread. It returns the `engine::handoff::AudioSide`, whose `push(&[&[f32]])`
+//!   is the only call made on the audio thread: wait-free, allocation-free, it copies into pooled
+//!   blocks, keeps lossless peak/clip atomics and counts dropped blocks. Settings travel through
+//!   `engine::EngineControl` (atomics, polled by the analysis side); the latest
+//!   `engine::Snapshot` appears in `engine::SnapshotSlot`. Dropping the `AnalysisThread` stops
+//!   and joins it.
+//! - **Scanner and tests (synchronous).** `Analyzer::new(setup, settings)`, then
+//!   `process(&block)` per block (true when a new snapshot is ready), `finish()` at the end, and
+//!   `integrated_map(band, method, scale)` / `integrated_intensity(band)` /
+//!   `programme_mean_square()` for whole-programme figures.
+//! - A snapshot holds the map of the selected band and method in dB, the strongest sources,
+//!   DirAC per band, per-channel meters (with ACN after mapping and SN3D level), W loudness and
+//!   peaks, the format check and findings with stable codes. It is plain data; colours are made
+//!   by `render`.
 
 pub mod beam;
 pub mod covariance;
