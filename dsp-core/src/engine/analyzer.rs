@@ -12,7 +12,7 @@ use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
 use super::snapshot::*;
 use crate::covariance::{BAND_COUNT, BandCovariance};
-use crate::format::{AmbiFormat, ConversionPlan, FormatError};
+use crate::format::{ConversionPlan, FormatError};
 use crate::format_check::{FormatCheckInput, FormatChecker};
 use crate::loudness::LoudnessMeter;
 use crate::meters::{ChannelMeterConfig, ChannelMeters, LEVEL_FLOOR_DB};
@@ -329,9 +329,24 @@ impl Analyzer {
         self.loudness.push(&self.w_scratch[..frames]);
     }
 
-    /// Raw covariance (input order) → SN3D (ACN order): R[a][b] = g_a g_b R_raw[s_a][s_b].
-    fn convert_covariance(&mut self, raw: &[f64], scale: f64) {
+    /// 1 / frames in the whole-programme accumulator (0 before the first frame).
+    fn integrated_scale(&self) -> f64 {
+        if self.integrated_frames > 0 {
+            1.0 / self.integrated_frames as f64
+        } else {
+            0.0
+        }
+    }
+
+    /// Fills `r_sn3d` with the live or whole-programme covariance of `band` converted from the
+    /// raw input to SN3D (ACN order): R[a][b] = g_a g_b R_raw[s_a][s_b].
+    fn load_sn3d(&mut self, band: usize, integrated: bool) {
         let m = self.layout.spatial_channels;
+        let (raw, scale) = if integrated {
+            (&self.integrated[band], self.integrated_scale())
+        } else {
+            (&self.live[band], 1.0)
+        };
         for a in 0..m {
             let (sa, ga) = (self.conversion.source_channel(a), self.conversion.gain(a));
             for b in 0..m {
@@ -350,29 +365,7 @@ impl Analyzer {
         let show_integrated = s.show_integrated;
 
         // Map of the selected band.
-        let integrated_scale = if self.integrated_frames > 0 {
-            1.0 / self.integrated_frames as f64
-        } else {
-            0.0
-        };
-        let source = if show_integrated {
-            std::mem::take(&mut self.integrated[band.index()])
-        } else {
-            std::mem::take(&mut self.live[band.index()])
-        };
-        self.convert_covariance(
-            &source,
-            if show_integrated {
-                integrated_scale
-            } else {
-                1.0
-            },
-        );
-        if show_integrated {
-            self.integrated[band.index()] = source;
-        } else {
-            self.live[band.index()] = source;
-        }
+        self.load_sn3d(band.index(), show_integrated);
         let mut map = std::mem::take(&mut self.snapshot.map);
         let mut sources = std::mem::take(&mut self.snapshot.sources);
         self.maps.make(
@@ -391,9 +384,7 @@ impl Analyzer {
 
         // DirAC per band, from the live covariance.
         for b in 0..BAND_COUNT {
-            let raw = std::mem::take(&mut self.live[b]);
-            self.convert_covariance(&raw, 1.0);
-            self.live[b] = raw;
+            self.load_sn3d(b, false);
             self.snapshot.intensity[b] = dirac(&self.r_sn3d, m);
         }
 
@@ -415,7 +406,6 @@ impl Analyzer {
 
     fn update_channels(&mut self) {
         let m = self.layout.spatial_channels;
-        let ordering = self.settings.assumed_format.ordering;
         let tolerance = self.settings.over_omni_tolerance_db;
         let status = &mut self.snapshot.channel_status;
         status.resize(self.setup.channels, ChannelStatus::default());
@@ -424,7 +414,6 @@ impl Analyzer {
         for acn in 0..m {
             acn_of_input[self.conversion.source_channel(acn)] = acn;
         }
-        let _ = ordering;
         let w_input = self.conversion.source_channel(0);
         let w_level = self.meters.rms_dbfs(w_input).unwrap_or(LEVEL_FLOOR_DB)
             + 20.0 * self.conversion.gain(0).abs().log10();
@@ -476,11 +465,7 @@ impl Analyzer {
         let mid = &self.integrated[Band::Mid.index()];
         let band = if mid[0] > 0.0 { Band::Mid } else { Band::Full };
         let raw = &self.integrated[band.index()];
-        let scale = if self.integrated_frames > 0 {
-            1.0 / self.integrated_frames as f64
-        } else {
-            0.0
-        };
+        let scale = self.integrated_scale();
         let cov: Vec<f64> = raw.iter().map(|v| v * scale).collect();
         let mean_square = self.programme_mean_square();
         let input = FormatCheckInput {
@@ -512,14 +497,7 @@ impl Analyzer {
         method: MapMethod,
         scale: MapScale,
     ) -> (MapImage, Vec<SourceReading>) {
-        let scale_factor = if self.integrated_frames > 0 {
-            1.0 / self.integrated_frames as f64
-        } else {
-            0.0
-        };
-        let raw = std::mem::take(&mut self.integrated[band.index()]);
-        self.convert_covariance(&raw, scale_factor);
-        self.integrated[band.index()] = raw;
+        self.load_sn3d(band.index(), true);
         let mut map = MapImage::default();
         let mut sources = Vec::new();
         let s = &self.settings;
@@ -539,14 +517,7 @@ impl Analyzer {
 
     /// Whole-programme DirAC of `band`.
     pub fn integrated_intensity(&mut self, band: Band) -> BandIntensity {
-        let scale_factor = if self.integrated_frames > 0 {
-            1.0 / self.integrated_frames as f64
-        } else {
-            0.0
-        };
-        let raw = std::mem::take(&mut self.integrated[band.index()]);
-        self.convert_covariance(&raw, scale_factor);
-        self.integrated[band.index()] = raw;
+        self.load_sn3d(band.index(), true);
         dirac(&self.r_sn3d, self.layout.spatial_channels)
     }
 }
@@ -585,9 +556,4 @@ pub fn dirac(r_sn3d: &[f64], m: usize) -> BandIntensity {
         diffuseness: Some(diffuseness),
         w_level_dbfs,
     }
-}
-
-#[allow(dead_code)]
-fn _assert_format_is_copy(f: AmbiFormat) -> AmbiFormat {
-    f
 }
