@@ -460,3 +460,38 @@ pub fn resident_bytes() -> u64 {
     let page = unsafe { libc::sysconf(libc::_SC_PAGESIZE) }.max(1) as u64;
     pages * page
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_single_changed_bit_is_a_difference() {
+        let mut b = Buffers::new(2, 8);
+        b.input[1][5] = f32::from_bits(0x7fc0_0001);
+        for (i, o) in b.input.iter().zip(b.output.iter_mut()) {
+            o.copy_from_slice(i);
+        }
+        assert_eq!(b.first_difference(8), None);
+        // NaN == NaN is false, but equal bits are equal; a different payload is a difference.
+        b.output[1][5] = f32::from_bits(0x7fc0_0002);
+        assert_eq!(
+            b.first_difference(8),
+            Some((1, 5, 0x7fc0_0001, 0x7fc0_0002))
+        );
+        // -0.0 == 0.0 as floats, not as bits.
+        b.output[1][5] = b.input[1][5];
+        b.output[0][0] = -0.0;
+        assert_eq!(b.first_difference(8), Some((0, 0, 0, 0x8000_0000)));
+        // Frames past `frames` are not compared.
+        assert_eq!(b.first_difference(0), None);
+    }
+
+    #[test]
+    #[should_panic(expected = "output differs from input")]
+    fn an_unwritten_output_fails_the_check() {
+        let mut b = Buffers::new(1, 4);
+        b.output[0].fill(f32::from_bits(OUTPUT_SENTINEL_BITS));
+        b.assert_passthrough(4, "unwritten");
+    }
+}
