@@ -1,11 +1,15 @@
 //! Runs the demo scene through the engine as the plugin would (audio side → pooled hand-off →
 //! analysis) and prints the CPU share of each side.
 //!
-//! `cargo run --release -p fieldglass-dsp --example engine_speed -- --order 7 [--seconds 20]`
+//! `cargo run --release -p fieldglass-dsp --example engine_speed -- --order 7 [--seconds 20]
+//! [--cold-input]`
 //!
 //! Settings: 48 kHz, 512-frame host buffers, 30 map updates per second, 1° grid, max-rE. Both
 //! sides run on this one thread, one after the other, so each is timed alone, in thread CPU
-//! time. The last line is
+//! time. Each host buffer is synthesised just before it is handed over (synthesis is not
+//! timed), so it is in cache, as a buffer a host has just filled would be. `--cold-input`
+//! instead pre-renders the whole scene and reads each buffer from main memory, which shows the
+//! audio side's cost when the host's buffer is not in cache. The last line is
 //! `order N: analysis A% of one core, audio side B% of one core`.
 
 use fieldglass_dsp::engine::handoff::handoff;
@@ -28,10 +32,20 @@ fn thread_cpu_time() -> Duration {
 const SAMPLE_RATE_HZ: f64 = 48_000.0;
 const HOST_BUFFER: usize = 512;
 
-fn parse() -> Result<(usize, f64), String> {
-    let (mut order, mut seconds) = (7usize, 20.0f64);
+struct Options {
+    order: usize,
+    seconds: f64,
+    cold_input: bool,
+}
+
+fn parse() -> Result<Options, String> {
+    let (mut order, mut seconds, mut cold_input) = (7usize, 20.0f64, false);
     let mut args = std::env::args().skip(1);
     while let Some(flag) = args.next() {
+        if flag == "--cold-input" {
+            cold_input = true;
+            continue;
+        }
         let value = args.next().ok_or_else(|| format!("{flag} needs a value"))?;
         match flag.as_str() {
             "--order" => {
@@ -46,7 +60,7 @@ fn parse() -> Result<(usize, f64), String> {
             }
             other => {
                 return Err(format!(
-                    "unknown option {other} (expected --order N, --seconds S)"
+                    "unknown option {other} (expected --order N, --seconds S, --cold-input)"
                 ));
             }
         }
@@ -56,11 +70,19 @@ fn parse() -> Result<(usize, f64), String> {
             "--order {order}: the engine supports orders 1 to 7"
         ));
     }
-    Ok((order, seconds.max(1.0)))
+    Ok(Options {
+        order,
+        seconds: seconds.max(1.0),
+        cold_input,
+    })
 }
 
 fn main() -> ExitCode {
-    let (order, seconds) = match parse() {
+    let Options {
+        order,
+        seconds,
+        cold_input,
+    } = match parse() {
         Ok(v) => v,
         Err(e) => {
             eprintln!("engine_speed: {e}");
@@ -90,22 +112,32 @@ fn main() -> ExitCode {
     .expect("analyzer");
     let (mut audio, receiver) = handoff(channels, HOST_BUFFER, 64);
 
-    // Pre-render the audio so synthesis is not timed.
     let total = (seconds * SAMPLE_RATE_HZ) as usize;
-    let mut rendered = vec![vec![0.0f32; total]; channels];
-    {
+    // Cold input: the whole scene rendered up front, each buffer read from main memory.
+    let mut rendered = vec![vec![0.0f32; if cold_input { total } else { 0 }]; channels];
+    if cold_input {
         let mut refs: Vec<&mut [f32]> = rendered.iter_mut().map(|c| c.as_mut_slice()).collect();
         scene.render(&mut refs);
     }
+    // Hot input: one host buffer, rendered just before it is handed over.
+    let mut host_buffer = vec![vec![0.0f32; HOST_BUFFER]; channels];
 
     let (mut audio_time, mut analysis_time) = (Duration::ZERO, Duration::ZERO);
     let mut snapshots = 0usize;
-    let mut refs: Vec<&[f32]> = Vec::with_capacity(channels);
     let mut start = 0;
     while start < total {
         let end = (start + HOST_BUFFER).min(total);
-        refs.clear();
-        refs.extend(rendered.iter().map(|c| &c[start..end]));
+        let mut refs: Vec<&[f32]> = Vec::with_capacity(channels);
+        if cold_input {
+            refs.extend(rendered.iter().map(|c| &c[start..end]));
+        } else {
+            let mut outs: Vec<&mut [f32]> = host_buffer
+                .iter_mut()
+                .map(|c| &mut c[..end - start])
+                .collect();
+            scene.render(&mut outs);
+            refs.extend(host_buffer.iter().map(|c| &c[..end - start]));
+        }
         let t0 = thread_cpu_time();
         audio.push(&refs);
         let t1 = thread_cpu_time();
@@ -125,6 +157,14 @@ fn main() -> ExitCode {
     }
     let audio_s = total as f64 / SAMPLE_RATE_HZ;
     let s = analyzer.snapshot();
+    println!(
+        "input {}",
+        if cold_input {
+            "read from main memory (--cold-input)"
+        } else {
+            "in cache, as from a host"
+        }
+    );
     println!(
         "{channels} channels, {audio_s:.1} s of demo audio, {snapshots} snapshots ({:.1} per s), {} dropped blocks",
         snapshots as f64 / audio_s,

@@ -61,11 +61,7 @@ impl PeakFinder {
         if map.len() != self.grid.len() || self.max_peaks == 0 {
             return &self.peaks;
         }
-        let maximum = map
-            .iter()
-            .copied()
-            .filter(|v| v.is_finite())
-            .fold(f32::NEG_INFINITY, f32::max);
+        let maximum = finite_max(map);
         if maximum <= 0.0 {
             return &self.peaks;
         }
@@ -73,18 +69,57 @@ impl PeakFinder {
         let threshold = (maximum as f64 * floor_ratio) as f32;
 
         let (width, height) = (self.grid.width(), self.grid.height());
+        if width == 0 {
+            return &self.peaks;
+        }
         for row in 0..height {
-            for col in 0..width {
-                let index = row * width + col;
-                let value = map[index];
-                if !value.is_finite() || value < threshold {
-                    continue;
-                }
+            let line = &map[row * width..(row + 1) * width];
+            let mut consider = |col: usize| {
+                let value = line[col];
                 if self.is_local_maximum(map, row, col, value) {
-                    self.candidates.push((value, index as u32));
+                    self.candidates.push((value, (row * width + col) as u32));
+                }
+            };
+            // Row ends wrap in azimuth: straight to the full test.
+            for col in [0, width - 1] {
+                let value = line[col];
+                if value.is_finite() && value >= threshold {
+                    consider(col);
+                }
+                if width == 1 {
+                    break;
+                }
+            }
+            // Interior: a branch-free pre-test marks 8 pixels at a time; only marked pixels
+            // get the full 8-neighbour test. Candidates are sorted below, so the order they
+            // are found in does not matter.
+            if width > 2 {
+                let (left, centre, right) = (&line[..width - 2], &line[1..width - 1], &line[2..]);
+                let groups = centre
+                    .chunks_exact(8)
+                    .zip(left.chunks_exact(8))
+                    .zip(right.chunks_exact(8));
+                let grouped = centre.len() - centre.len() % 8;
+                for (g, ((c8, l8), r8)) in groups.enumerate() {
+                    let mut marks = 0u32;
+                    for lane in 0..8 {
+                        let hit = is_candidate(l8[lane], c8[lane], r8[lane], threshold);
+                        marks |= u32::from(hit) << lane;
+                    }
+                    while marks != 0 {
+                        let lane = marks.trailing_zeros() as usize;
+                        marks &= marks - 1;
+                        consider(1 + g * 8 + lane);
+                    }
+                }
+                for i in grouped..centre.len() {
+                    if is_candidate(left[i], centre[i], right[i], threshold) {
+                        consider(1 + i);
+                    }
                 }
             }
         }
+
         // Strongest first; equal values keep scan order. sort_unstable does not allocate.
         self.candidates
             .sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
@@ -201,4 +236,34 @@ impl PeakFinder {
             level_db: 0.0,
         }
     }
+}
+
+/// Cheap necessary conditions for an interior pixel between `left` and `right` to be a local
+/// maximum: finite, at or above the floor, above its left neighbour and not below its right
+/// one (ties go to the earlier pixel; NaN neighbours lose). Most pixels of a smooth map fail
+/// here. Branch-free, so several pixels can be tested at once.
+#[inline(always)]
+#[allow(clippy::neg_cmp_op_on_partial_ord)] // the negations are the NaN rule, on purpose
+fn is_candidate(left: f32, value: f32, right: f32, threshold: f32) -> bool {
+    (value.abs() <= f32::MAX) & !(value < threshold) & !(left >= value) & !(right > value)
+}
+
+/// Largest finite value of `map` (−∞ if none). Eight lanes, so the loop vectorises.
+fn finite_max(map: &[f32]) -> f32 {
+    let mut lanes = [f32::NEG_INFINITY; 8];
+    let mut chunks = map.chunks_exact(8);
+    for chunk in &mut chunks {
+        for (l, &v) in lanes.iter_mut().zip(chunk) {
+            if v.is_finite() && v > *l {
+                *l = v;
+            }
+        }
+    }
+    let tail = chunks
+        .remainder()
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(f32::NEG_INFINITY, f32::max);
+    lanes.iter().fold(tail, |m, &l| m.max(l))
 }

@@ -285,20 +285,12 @@ impl PowerMapPlan {
                     .map(|(c, p)| c * p)
                     .sum();
             }
-            // p(row, col) = Σ_s A_s·trig_s(col), accumulated column-wise so the loop vectorises.
-            let accumulator = &mut self.row_accumulator[..];
-            accumulator.fill(self.row_amplitudes[0]);
-            for (&amplitude, trig) in self.row_amplitudes[1..]
-                .iter()
-                .zip(self.column_trig[width..].chunks_exact(width))
-            {
-                for (acc, &t) in accumulator.iter_mut().zip(trig) {
-                    *acc += amplitude * t;
-                }
-            }
-            for (o, &acc) in out_row.iter_mut().zip(accumulator.iter()) {
-                *o = acc as f32;
-            }
+            synthesize_row(
+                &self.row_amplitudes,
+                &self.column_trig,
+                &mut self.row_accumulator,
+                out_row,
+            );
         }
         Ok(())
     }
@@ -352,5 +344,85 @@ impl PowerMapPlan {
                 self.pair_values[coupling.pair as usize] * coupling.value;
         }
         Ok(())
+    }
+}
+
+/// One map row from its per-slot amplitudes: p(col) = Σ_s A_s·trig_s(col).
+///
+/// Columns half a turn apart (col and col + W/2 when the width W is even) share their
+/// trigonometric values up to the sign (−1)^m, so the slots are summed in two halves, even and
+/// odd m, over the first half of the row only: p(col) = E + O and p(col + W/2) = E − O. That
+/// halves the work. AVX is used where the CPU has it (same operations, same results).
+fn synthesize_row(amplitudes: &[f64], column_trig: &[f64], scratch: &mut [f64], out: &mut [f32]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx") {
+            // SAFETY: the CPU supports AVX (checked just above).
+            return unsafe { synthesize_row_avx(amplitudes, column_trig, scratch, out) };
+        }
+    }
+    synthesize_row_portable(amplitudes, column_trig, scratch, out)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn synthesize_row_avx(
+    amplitudes: &[f64],
+    column_trig: &[f64],
+    scratch: &mut [f64],
+    out: &mut [f32],
+) {
+    synthesize_row_portable(amplitudes, column_trig, scratch, out)
+}
+
+#[inline(always)]
+fn synthesize_row_portable(
+    amplitudes: &[f64],
+    column_trig: &[f64],
+    scratch: &mut [f64],
+    out: &mut [f32],
+) {
+    let width = out.len();
+    // Slot s carries m = ⌈s/2⌉ (cos for odd s, sin for even s > 0).
+    let m_of_slot = |slot: usize| slot.div_ceil(2);
+    if width.is_multiple_of(2) && width > 0 {
+        let half = width / 2;
+        let (even, odd) = scratch[..width].split_at_mut(half);
+        even.fill(amplitudes[0]);
+        odd.fill(0.0);
+        for (slot, (&amplitude, trig)) in amplitudes
+            .iter()
+            .zip(column_trig.chunks_exact(width))
+            .enumerate()
+            .skip(1)
+        {
+            let target = if m_of_slot(slot) % 2 == 0 {
+                &mut *even
+            } else {
+                &mut *odd
+            };
+            for (acc, &t) in target.iter_mut().zip(&trig[..half]) {
+                *acc += amplitude * t;
+            }
+        }
+        let (front, back) = out.split_at_mut(half);
+        for (((f, b), &e), &o) in front.iter_mut().zip(back).zip(&*even).zip(&*odd) {
+            *f = (e + o) as f32;
+            *b = (e - o) as f32;
+        }
+    } else {
+        let accumulator = &mut scratch[..width];
+        accumulator.fill(amplitudes[0]);
+        for (&amplitude, trig) in amplitudes[1..]
+            .iter()
+            .zip(column_trig[width..].chunks_exact(width))
+        {
+            for (acc, &t) in accumulator.iter_mut().zip(trig) {
+                *acc += amplitude * t;
+            }
+        }
+        for (o, &acc) in out.iter_mut().zip(accumulator.iter()) {
+            *o = acc as f32;
+        }
     }
 }

@@ -169,12 +169,13 @@ impl AudioSide {
             // NaN neither raises the peak nor counts as clipped (NaN ≥ 1 is false); the
             // analysis side counts invalid samples.
             let peak = crate::meters::abs_max(samples);
-            let clipped = samples
-                .iter()
-                .map(|x| u64::from(x.abs() >= 1.0))
-                .sum::<u64>();
             self.counters.peaks[c].fetch_max(peak, Ordering::AcqRel);
-            if clipped > 0 {
+            // Clipping is rare: count only when the peak says there is something to count.
+            if peak >= 1.0 {
+                let clipped = samples
+                    .iter()
+                    .map(|x| u64::from(x.abs() >= 1.0))
+                    .sum::<u64>();
                 self.counters.clipped_samples[c].fetch_add(clipped, Ordering::Relaxed);
             }
         }

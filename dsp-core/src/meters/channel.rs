@@ -2,7 +2,8 @@
 
 use std::fmt;
 
-use super::true_peak::{CHUNK, TruePeakMeter};
+use super::abs_max;
+use super::true_peak::{CHUNK, TruePeakMeter, all_finite};
 use super::{LEVEL_FLOOR_DB, amplitude_to_db, mean_square_to_db};
 
 /// Settings of a [`ChannelMeters`] strip.
@@ -169,6 +170,9 @@ struct ChannelState {
     true_peak: TruePeakMeter,
     current: Segment,
     current_fill: usize,
+    /// The current segment's sums, split into [`SUM_LANES`] lanes by sample position within
+    /// the segment; folded into `current` in a fixed order when the segment completes.
+    lanes: SegmentLanes,
     /// Completed segments, ring of length `segments_per_window`.
     ring: Vec<Segment>,
     ring_next: usize,
@@ -188,6 +192,7 @@ impl ChannelState {
             true_peak: TruePeakMeter::new(),
             current: Segment::default(),
             current_fill: 0,
+            lanes: SegmentLanes::default(),
             ring: vec![Segment::default(); segments_per_window],
             ring_next: 0,
             segments_done: 0,
@@ -323,27 +328,29 @@ impl ChannelMeters {
                 let n = room.min(samples.len() - offset).min(CHUNK);
                 let piece = &samples[offset..offset + n];
                 let true_peak = state.true_peak.push(piece);
+                let finite = all_finite(piece);
+                state.lanes.add(piece, state.current_fill, finite);
                 let seg = &mut state.current;
-                // Sums run sample by sample into the segment, in stream order, so readings are
-                // bit-identical whatever the block sizes.
-                let (mut sum_squares, mut sum, mut peak) = (seg.sum_squares, seg.sum, 0.0f32);
-                let (mut valid, mut clips) = (0u64, 0u64);
-                for &sample in piece {
-                    if sample.is_finite() {
-                        let x = f64::from(sample);
-                        sum_squares += x * x;
-                        sum += x;
-                        valid += 1;
-                        peak = peak.max(sample.abs());
-                        clips += u64::from(sample.abs() >= clip_threshold);
-                    }
+                let (peak, valid) = if finite {
+                    (abs_max(piece), n as u64)
+                } else {
+                    let valid = piece.iter().filter(|x| x.is_finite()).count() as u64;
+                    let peak = piece
+                        .iter()
+                        .filter(|x| x.is_finite())
+                        .fold(0.0f32, |m, x| m.max(x.abs()));
+                    (peak, valid)
+                };
+                // Clips are rare: count only when the peak says there is something to count.
+                if peak >= clip_threshold {
+                    state.clip_count += piece
+                        .iter()
+                        .filter(|x| x.is_finite() && x.abs() >= clip_threshold)
+                        .count() as u64;
                 }
-                seg.sum_squares = sum_squares;
-                seg.sum = sum;
                 seg.valid_count += valid;
                 seg.sample_peak = seg.sample_peak.max(f64::from(peak));
                 seg.true_peak = seg.true_peak.max(true_peak);
-                state.clip_count += clips;
                 state.invalid_sample_count += n as u64 - valid;
                 state.current_fill += n;
                 offset += n;
@@ -438,7 +445,62 @@ impl ChannelMeters {
     }
 }
 
+/// Sums over the current segment in [`SUM_LANES`] lanes: the sample at position p of the
+/// segment goes to lane p mod 4, so the lanes vectorise and every sum is formed in the same
+/// order whatever the block sizes (readings stay bit-identical across host buffer sizes).
+const SUM_LANES: usize = 4;
+
+#[derive(Debug, Clone, Copy, Default)]
+struct SegmentLanes {
+    sum_squares: [f64; SUM_LANES],
+    sum: [f64; SUM_LANES],
+}
+
+impl SegmentLanes {
+    /// Adds `samples`, the first at position `position` of the segment. Non-finite samples
+    /// add 0 (pass `all_finite = true` only when there are none).
+    fn add(&mut self, samples: &[f32], position: usize, all_finite: bool) {
+        let clean = |x: f32| {
+            if all_finite || x.is_finite() {
+                f64::from(x)
+            } else {
+                0.0
+            }
+        };
+        let head = (SUM_LANES - position % SUM_LANES) % SUM_LANES;
+        let head = head.min(samples.len());
+        for (i, &x) in samples[..head].iter().enumerate() {
+            let lane = (position + i) % SUM_LANES;
+            let x = clean(x);
+            self.sum_squares[lane] += x * x;
+            self.sum[lane] += x;
+        }
+        let mut groups = samples[head..].chunks_exact(SUM_LANES);
+        for group in &mut groups {
+            for (lane, &x) in group.iter().enumerate() {
+                let x = clean(x);
+                self.sum_squares[lane] += x * x;
+                self.sum[lane] += x;
+            }
+        }
+        for (lane, &x) in groups.remainder().iter().enumerate() {
+            let x = clean(x);
+            self.sum_squares[lane] += x * x;
+            self.sum[lane] += x;
+        }
+    }
+
+    /// Folds the lanes into `segment` (fixed order) and clears them.
+    fn fold_into(&mut self, segment: &mut Segment) {
+        segment.sum_squares = (self.sum_squares[0] + self.sum_squares[1])
+            + (self.sum_squares[2] + self.sum_squares[3]);
+        segment.sum = (self.sum[0] + self.sum[1]) + (self.sum[2] + self.sum[3]);
+        *self = Self::default();
+    }
+}
+
 fn finish_segment(state: &mut ChannelState, segment_s: f64, hold_s: f64) {
+    state.lanes.fold_into(&mut state.current);
     let segment = state.current;
     let window_len = state.ring.len();
     state.ring[state.ring_next] = segment;
