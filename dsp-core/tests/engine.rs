@@ -215,3 +215,65 @@ fn nan_and_silence_do_not_poison_the_analysis() {
     assert!(a.snapshot().map.values_db.iter().all(|v| v.is_finite()));
     assert!(a.snapshot().sources.is_empty());
 }
+
+/// FuMa is defined up to third order only (common practice: the Furse-Malham set stops at
+/// order 3). Asking for it on a higher-order stream must not stop the monitor: the analysis
+/// keeps its format, says why in the snapshot, takes the other settings, and clears the
+/// message once a usable format is chosen.
+#[test]
+fn fuma_above_third_order_is_refused_with_a_reason_and_the_analysis_goes_on() {
+    use fieldglass_dsp::engine::{Engine, EngineControl, SnapshotSlot};
+    let setup = StreamSetup {
+        sample_rate_hz: FS,
+        channels: 25,
+    };
+    let fuma = AnalysisSettings {
+        assumed_format: AmbiFormat::FUMA,
+        ..AnalysisSettings::default()
+    };
+    // Synchronous analysis: a refused change keeps the format, applies the rest.
+    let mut analyzer = Analyzer::new(setup, AnalysisSettings::default()).unwrap();
+    let with_band = AnalysisSettings {
+        band: Band::High,
+        ..fuma
+    };
+    assert!(analyzer.apply_settings(with_band).is_err());
+    assert_eq!(analyzer.settings().assumed_format, AmbiFormat::ACN_SN3D);
+    assert_eq!(analyzer.settings().band, Band::High);
+    let block = vec![Noise(7).block(4800, 0.1); 25];
+    let refs: Vec<&[f32]> = block.iter().map(|c| c.as_slice()).collect();
+    analyzer.process(&refs);
+    let message = analyzer.finish().format_not_applied.clone().unwrap();
+    assert!(
+        message.contains("FuMa") && message.contains("ACN/SN3D"),
+        "{message}"
+    );
+    analyzer
+        .apply_settings(AnalysisSettings::default())
+        .unwrap();
+    assert_eq!(analyzer.finish().format_not_applied, None);
+
+    // Threaded engine started with FuMa requested: it runs, as AmbiX, and says so.
+    let control = EngineControl::new(fuma);
+    let slot = SnapshotSlot::new();
+    let (mut audio, mut thread) = Engine::start(setup, 512, control, slot.clone()).unwrap();
+    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(10);
+    let snapshot = loop {
+        for piece in refs
+            .iter()
+            .map(|c| &c[..480])
+            .collect::<Vec<_>>()
+            .chunks(25)
+        {
+            audio.push(piece);
+        }
+        if let Some(s) = slot.latest() {
+            break s;
+        }
+        assert!(std::time::Instant::now() < deadline, "no snapshot");
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    };
+    assert_eq!(snapshot.assumed_format, AmbiFormat::ACN_SN3D);
+    assert!(snapshot.format_not_applied.is_some());
+    thread.stop();
+}

@@ -53,6 +53,15 @@ struct LiveArgs {
     standalone: Vec<String>,
 }
 
+/// The standalone wrapper's number (counted from 1) of the layout for `order`.
+#[cfg(feature = "standalone")]
+fn layout_number(order: u32) -> usize {
+    fieldglass::SUPPORTED_ORDERS
+        .iter()
+        .position(|&o| o == order)
+        .map_or(1, |i| i + 1)
+}
+
 #[cfg(feature = "standalone")]
 fn run_live(args: LiveArgs) -> Result<ExitCode, CliError> {
     use fieldglass::player::{PlaySource, set_play_source};
@@ -79,7 +88,8 @@ fn run_live(args: LiveArgs) -> Result<ExitCode, CliError> {
     let mut wrapper_args = vec![
         "fieldglass live".to_string(),
         "--audio-layout".into(),
-        (order - 1).to_string(),
+        // The wrapper counts layouts from 1.
+        layout_number(order).to_string(),
     ];
     if args.play.is_some()
         && !args

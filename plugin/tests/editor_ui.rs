@@ -177,6 +177,21 @@ fn meter_strip_warns_about_a_channel_above_w() {
 }
 
 #[test]
+fn a_refused_format_is_explained_in_the_format_panel() {
+    let mut snapshot = quiet_snapshot(4);
+    let reason =
+        "order 4 is not defined for FuMa: the stream is analysed as AmbiX (ACN/SN3D) instead";
+    snapshot.format_not_applied = Some(reason.to_owned());
+    let harness = harness(Some(snapshot));
+    let _ = harness.get_by_label(reason);
+    let calm = self::harness(Some(quiet_snapshot(4)));
+    assert!(
+        calm.query_by_label_contains("not defined for FuMa")
+            .is_none()
+    );
+}
+
+#[test]
 fn meter_strip_handles_64_channels_and_names_the_channel() {
     let mut snapshot = quiet_snapshot(7);
     assert_eq!(snapshot.channel_status.len(), 64);

@@ -101,6 +101,8 @@ pub struct Analyzer {
     time_s: f64,
     load_busy_s: f64,
     load_audio_s: f64,
+    /// Why the requested format is not the one in use (see [`Analyzer::apply_settings`]).
+    format_not_applied: Option<String>,
 }
 
 impl Analyzer {
@@ -164,6 +166,7 @@ impl Analyzer {
             time_s: 0.0,
             load_busy_s: 0.0,
             load_audio_s: 0.0,
+            format_not_applied: None,
         })
     }
 
@@ -187,10 +190,29 @@ impl Analyzer {
 
     /// Applies new settings. Changing the format or band edges keeps the accumulated
     /// covariance (it is kept in the raw input domain); changing the grid rebuilds the map plan.
+    ///
+    /// A format the stream cannot be read as (FuMa above third order) is refused: the previous
+    /// format stays in use, every other setting is still applied, the error is returned and the
+    /// snapshot says why ([`Snapshot::format_not_applied`]) until a usable format is chosen.
     pub fn apply_settings(&mut self, settings: AnalysisSettings) -> Result<(), EngineError> {
+        let mut settings = settings;
+        let mut refused = None;
         if settings.assumed_format != self.settings.assumed_format {
-            self.conversion = ConversionPlan::to_sn3d(settings.assumed_format, self.layout.order)?;
-            self.loudness.reset();
+            match ConversionPlan::to_sn3d(settings.assumed_format, self.layout.order) {
+                Ok(conversion) => {
+                    self.conversion = conversion;
+                    self.loudness.reset();
+                    self.format_not_applied = None;
+                }
+                Err(e) => {
+                    self.refuse_format(&e);
+                    settings.assumed_format = self.settings.assumed_format;
+                    refused = Some(e);
+                }
+            }
+        } else {
+            // The format in use is the one asked for (again): nothing is refused any more.
+            self.format_not_applied = None;
         }
         if settings.band_edges_hz != self.settings.band_edges_hz {
             self.covariance
@@ -204,7 +226,19 @@ impl Analyzer {
                 .map_err(EngineError::Settings)?;
         }
         self.settings = settings;
-        Ok(())
+        match refused {
+            Some(e) => Err(e.into()),
+            None => Ok(()),
+        }
+    }
+
+    /// Records that a requested format could not be applied (`error` says why); the snapshot
+    /// shows it with the format in use.
+    pub fn refuse_format(&mut self, error: &FormatError) {
+        self.format_not_applied = Some(format!(
+            "{error}: the stream is analysed as {} instead",
+            self.settings.assumed_format.human_name()
+        ));
     }
 
     pub fn reset_loudness(&mut self) {
@@ -399,6 +433,7 @@ impl Analyzer {
         snap.sequence = self.sequence;
         snap.time_s = self.time_s;
         snap.assumed_format = self.settings.assumed_format;
+        snap.format_not_applied.clone_from(&self.format_not_applied);
         snap.band_edges_hz = self.covariance.layout().edges_hz();
         snap.frozen = self.settings.hold;
         snap.findings = collect_findings(snap, &self.settings);

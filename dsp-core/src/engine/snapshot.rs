@@ -276,7 +276,11 @@ pub struct Snapshot {
     pub order: usize,
     /// Input channels in all (spatial + extra).
     pub channels: usize,
+    /// The format the analysis reads the input as.
     pub assumed_format: AmbiFormat,
+    /// Set when the requested format could not be used (FuMa above third order): why, and
+    /// which format is used instead.
+    pub format_not_applied: Option<String>,
     /// The map of the selected band and method (live or integrated as selected).
     pub map: MapImage,
     /// Strongest directions in `map`, strongest first.

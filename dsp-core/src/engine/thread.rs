@@ -1,8 +1,9 @@
 //! Running the analysis on its own thread, fed by the audio-side hand-off.
 
 use super::analyzer::{Analyzer, EngineError, StreamSetup};
-use super::control::{EngineControl, SnapshotSlot};
+use super::control::{AnalysisSettings, EngineControl, SnapshotSlot};
 use super::handoff::{AudioSide, BlockReceiver, handoff};
+use crate::format::AmbiFormat;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::thread::JoinHandle;
@@ -24,7 +25,22 @@ impl Engine {
         control: Arc<EngineControl>,
         slot: Arc<SnapshotSlot>,
     ) -> Result<(AudioSide, AnalysisThread), EngineError> {
-        let mut analyzer = Analyzer::new(setup, control.load())?;
+        let requested = control.load();
+        let mut analyzer = match Analyzer::new(setup, requested) {
+            Ok(analyzer) => analyzer,
+            // A format this stream cannot be read as (FuMa above third order) must not stop the
+            // monitor: analyse as AmbiX and say so in every snapshot.
+            Err(EngineError::Format(e)) => {
+                let fallback = AnalysisSettings {
+                    assumed_format: AmbiFormat::ACN_SN3D,
+                    ..requested
+                };
+                let mut analyzer = Analyzer::new(setup, fallback)?;
+                analyzer.refuse_format(&e);
+                analyzer
+            }
+            Err(e) => return Err(e),
+        };
         let block_frames = max_block_frames.clamp(64, 2048);
         analyzer.reserve_block(block_frames);
         let pool = ((POOL_SECONDS * setup.sample_rate_hz / block_frames as f64).ceil() as usize)

@@ -61,9 +61,9 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
             crate::params::TOLERANCE_MIN_DB..=crate::params::TOLERANCE_MAX_DB,
         )
         .step_by(0.1)
-        .suffix(" dB")
-        .text("Over-omni tolerance");
-        if ui.add(slider).changed() {
+        .suffix(" dB");
+        let label = ui.label("Over-omni tolerance");
+        if ui.add(slider).labelled_by(label.id).changed() {
             host.set_knob(Knob::OverOmniToleranceDb, tolerance_db);
         }
         if ui.button("Reset clips").clicked() {

@@ -75,6 +75,9 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
         ui.label(egui::RichText::new("Waiting for audio").color(theme::TEXT_DIM));
         return;
     };
+    if let Some(reason) = &snapshot.format_not_applied {
+        ui.label(egui::RichText::new(reason).color(theme::WARNING));
+    }
     let check = &snapshot.format_check;
     let detected = if check.ready { check.detected } else { None };
     let disagrees = detected.is_some_and(|d| d != assumed.format());

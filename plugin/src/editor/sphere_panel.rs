@@ -95,40 +95,63 @@ fn method_text(method: MethodChoice) -> &'static str {
     method.method().human_name()
 }
 
+/// Width of the view sliders, so a row of four fits the panel at the default window size.
+const SLIDER_WIDTH: f32 = 64.0;
+
+/// A label followed by its control, kept together when the row wraps; the control is
+/// announced under the label's name (AccessKit).
+fn labelled(
+    ui: &mut egui::Ui,
+    text: &str,
+    add: impl FnOnce(&mut egui::Ui) -> egui::Response,
+) -> egui::Response {
+    ui.horizontal(|ui| {
+        let label = ui.label(text);
+        add(ui).labelled_by(label.id)
+    })
+    .inner
+}
+
 fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn EditorHost) {
     let settings = host.settings();
     let edges_hz = snapshot.map(|s| s.band_edges_hz);
     ui.horizontal_wrapped(|ui| {
         let mut band = settings.band;
-        egui::ComboBox::new("fieldglass_band", "Band")
-            .selected_text(band_text(band, edges_hz))
-            .show_ui(ui, |ui| {
-                for choice in [
-                    BandChoice::Full,
-                    BandChoice::Low,
-                    BandChoice::Mid,
-                    BandChoice::High,
-                ] {
-                    ui.selectable_value(&mut band, choice, band_text(choice, edges_hz));
-                }
-            });
+        labelled(ui, "Band", |ui| {
+            egui::ComboBox::from_id_salt("fieldglass_band")
+                .selected_text(band_text(band, edges_hz))
+                .show_ui(ui, |ui| {
+                    for choice in [
+                        BandChoice::Full,
+                        BandChoice::Low,
+                        BandChoice::Mid,
+                        BandChoice::High,
+                    ] {
+                        ui.selectable_value(&mut band, choice, band_text(choice, edges_hz));
+                    }
+                })
+                .response
+        });
         if band != settings.band {
             host.set_band(band);
         }
         let mut method = settings.method;
-        egui::ComboBox::new("fieldglass_method", "Method")
-            .selected_text(method_text(method))
-            .show_ui(ui, |ui| {
-                for choice in [
-                    MethodChoice::Basic,
-                    MethodChoice::MaxRe,
-                    MethodChoice::InPhase,
-                    MethodChoice::Mvdr,
-                    MethodChoice::Music,
-                ] {
-                    ui.selectable_value(&mut method, choice, method_text(choice));
-                }
-            });
+        labelled(ui, "Method", |ui| {
+            egui::ComboBox::from_id_salt("fieldglass_method")
+                .selected_text(method_text(method))
+                .show_ui(ui, |ui| {
+                    for choice in [
+                        MethodChoice::Basic,
+                        MethodChoice::MaxRe,
+                        MethodChoice::InPhase,
+                        MethodChoice::Mvdr,
+                        MethodChoice::Music,
+                    ] {
+                        ui.selectable_value(&mut method, choice, method_text(choice));
+                    }
+                })
+                .response
+        });
         if method != settings.method {
             host.set_method(method);
         }
@@ -138,66 +161,48 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
         if ui.button("Reset session map").clicked() {
             host.request(Request::ResetSessionMap);
         }
-        ui.separator();
-        ui.checkbox(&mut view.show_grid, "Grid");
-        ui.checkbox(&mut view.show_labels, "Labels");
-        ui.checkbox(&mut view.show_sources, "Markers");
         if view != settings.view {
             host.set_view(view);
         }
     });
     ui.horizontal_wrapped(|ui| {
+        ui.spacing_mut().slider_width = SLIDER_WIDTH;
         let mut range_db = settings.map_range_db;
         let mut time_constant_ms = settings.time_constant_ms;
         let mut yaw_deg = settings.view_yaw_deg;
         let mut pitch_deg = settings.view_pitch_deg;
-        if ui
-            .add(
-                egui::Slider::new(&mut range_db, MAP_RANGE_MIN_DB..=MAP_RANGE_MAX_DB)
-                    .step_by(1.0)
-                    .suffix(" dB")
-                    .text("Range"),
-            )
-            .changed()
-        {
+        let range = egui::Slider::new(&mut range_db, MAP_RANGE_MIN_DB..=MAP_RANGE_MAX_DB)
+            .step_by(1.0)
+            .suffix(" dB");
+        if labelled(ui, "Range", |ui| ui.add(range)).changed() {
             host.set_knob(Knob::MapRangeDb, range_db);
         }
-        if ui
-            .add(
-                egui::Slider::new(
-                    &mut time_constant_ms,
-                    TIME_CONSTANT_MIN_MS..=TIME_CONSTANT_MAX_MS,
-                )
-                .logarithmic(true)
-                .fixed_decimals(0)
-                .suffix(" ms")
-                .text("Time constant"),
-            )
-            .changed()
-        {
+        let time_constant = egui::Slider::new(
+            &mut time_constant_ms,
+            TIME_CONSTANT_MIN_MS..=TIME_CONSTANT_MAX_MS,
+        )
+        .logarithmic(true)
+        .fixed_decimals(0)
+        .suffix(" ms");
+        if labelled(ui, "Time constant", |ui| ui.add(time_constant)).changed() {
             host.set_knob(Knob::TimeConstantMs, time_constant_ms);
         }
-        if ui
-            .add(
-                egui::Slider::new(&mut yaw_deg, -180.0..=180.0)
-                    .step_by(1.0)
-                    .suffix("°")
-                    .text("Yaw"),
-            )
-            .changed()
-        {
+        let yaw = egui::Slider::new(&mut yaw_deg, -180.0..=180.0)
+            .step_by(1.0)
+            .suffix("°");
+        if labelled(ui, "Yaw", |ui| ui.add(yaw)).changed() {
             host.set_knob(Knob::ViewYawDeg, yaw_deg);
         }
-        if ui
-            .add(
-                egui::Slider::new(&mut pitch_deg, -90.0..=90.0)
-                    .step_by(1.0)
-                    .suffix("°")
-                    .text("Pitch"),
+        let pitch = egui::Slider::new(&mut pitch_deg, -90.0..=90.0)
+            .step_by(1.0)
+            .suffix("°");
+        let pitch_changed = labelled(ui, "Pitch", |ui| {
+            ui.add(pitch).on_hover_text(
+                "Shifts the picture up or down (an approximation of tilting the view)",
             )
-            .on_hover_text("Shifts the picture up or down (an approximation of tilting the view)")
-            .changed()
-        {
+        })
+        .changed();
+        if pitch_changed {
             host.set_knob(Knob::ViewPitchDeg, pitch_deg);
         }
     });
@@ -298,9 +303,30 @@ pub fn draw(
             let radius = if rank == 0 { 7.0 } else { 5.0 };
             painter.circle_stroke(p, radius, Stroke::new(1.5, theme::SOURCE_MARK));
             painter.circle_filled(p, 1.5, theme::SOURCE_MARK);
+            // Keep the label inside the map: flip it left near the right edge, down near the top.
+            let flip_left = p.x > map_rect.right() - MARKER_LABEL_ROOM;
+            let flip_down = p.y < map_rect.top() + 16.0;
+            let offset = vec2(
+                if flip_left {
+                    -(radius + 3.0)
+                } else {
+                    radius + 3.0
+                },
+                if flip_down {
+                    radius + 2.0
+                } else {
+                    -radius - 2.0
+                },
+            );
+            let anchor = match (flip_left, flip_down) {
+                (false, false) => egui::Align2::LEFT_BOTTOM,
+                (true, false) => egui::Align2::RIGHT_BOTTOM,
+                (false, true) => egui::Align2::LEFT_TOP,
+                (true, true) => egui::Align2::RIGHT_TOP,
+            };
             painter.text(
-                p + vec2(radius + 3.0, -radius - 2.0),
-                egui::Align2::LEFT_BOTTOM,
+                p + offset,
+                anchor,
                 theme::format_direction(d.azimuth_deg, d.elevation_deg),
                 theme::small_font(),
                 theme::SOURCE_MARK,
@@ -315,8 +341,9 @@ pub fn draw(
         state_words.push("Whole session");
     }
     if !state_words.is_empty() {
+        // Below the direction words that run along the top edge.
         painter.text(
-            map_rect.left_top() + vec2(6.0, 4.0),
+            map_rect.left_top() + vec2(6.0, 20.0),
             egui::Align2::LEFT_TOP,
             state_words.join(" · "),
             theme::small_font(),
@@ -340,7 +367,12 @@ pub fn draw(
             readout_text(az, el, value, unit_of(map))
         })
         .unwrap_or_else(|| "Pointer: outside the map".to_owned());
-    ui.label(egui::RichText::new(readout).color(theme::TEXT_DIM));
+    ui.horizontal(|ui| {
+        ui.label(egui::RichText::new(readout).color(theme::TEXT_DIM));
+        ui.with_layout(egui::Layout::right_to_left(egui::Align::Center), |ui| {
+            draw_overlay_switches(ui, host);
+        });
+    });
 
     ui.horizontal_wrapped(|ui| {
         ui.label(egui::RichText::new("Sources").strong());
@@ -356,6 +388,22 @@ pub fn draw(
             ));
         }
     });
+}
+
+/// Room a marker label needs to the right of its marker, in points.
+const MARKER_LABEL_ROOM: f32 = 100.0;
+
+/// The map's overlay switches (grid, labels, markers), drawn right to left.
+fn draw_overlay_switches(ui: &mut egui::Ui, host: &mut dyn EditorHost) {
+    let settings = host.settings();
+    let mut view = settings.view;
+    ui.checkbox(&mut view.show_sources, "Markers");
+    ui.checkbox(&mut view.show_labels, "Labels");
+    ui.checkbox(&mut view.show_grid, "Grid");
+    ui.label(egui::RichText::new("Show").color(theme::TEXT_DIM));
+    if view != settings.view {
+        host.set_view(view);
+    }
 }
 
 fn draw_grid(painter: &egui::Painter, rect: Rect, to_screen: &dyn Fn(f64, f64) -> egui::Pos2) {
