@@ -341,10 +341,10 @@ pub fn draw(
         state_words.push("Whole session");
     }
     if !state_words.is_empty() {
-        // Below the direction words that run along the top edge.
+        // Above the azimuth numbers along the bottom edge, where markers are rare.
         painter.text(
-            map_rect.left_top() + vec2(6.0, 20.0),
-            egui::Align2::LEFT_TOP,
+            map_rect.left_bottom() + vec2(6.0, -20.0),
+            egui::Align2::LEFT_BOTTOM,
             state_words.join(" · "),
             theme::small_font(),
             theme::TEXT,
@@ -379,7 +379,8 @@ pub fn draw(
         if snapshot.sources.is_empty() {
             ui.label(egui::RichText::new("none found").color(theme::TEXT_DIM));
         }
-        for source in &snapshot.sources {
+        // One line's worth; the markers on the map show them all.
+        for source in snapshot.sources.iter().take(LISTED_SOURCES) {
             let d = source.direction;
             ui.label(format!(
                 "{} ({} dB)",
@@ -387,8 +388,18 @@ pub fn draw(
                 theme::format_db(source.level_db)
             ));
         }
+        let unlisted = snapshot.sources.len().saturating_sub(LISTED_SOURCES);
+        if unlisted > 0 {
+            ui.label(
+                egui::RichText::new(format!("and {unlisted} more on the map"))
+                    .color(theme::TEXT_DIM),
+            );
+        }
     });
 }
+
+/// Sources named in the line under the map.
+const LISTED_SOURCES: usize = 4;
 
 /// Room a marker label needs to the right of its marker, in points.
 const MARKER_LABEL_ROOM: f32 = 100.0;
