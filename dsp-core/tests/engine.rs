@@ -194,7 +194,8 @@ fn n3d_read_as_sn3d_raises_over_omni_and_sn3d_does_not() {
 #[test]
 fn nan_and_silence_do_not_poison_the_analysis() {
     let d = Direction::new(0.0, 0.0);
-    let mut signal = encode(2, AmbiFormat::ACN_SN3D, &[(d, 0.3)], None, 1.0);
+    // 4 s, so the 3 s short-term loudness window lies wholly after the bad samples.
+    let mut signal = encode(2, AmbiFormat::ACN_SN3D, &[(d, 0.3)], None, 4.0);
     for c in signal.iter_mut() {
         for x in &mut c[1000..1100] {
             *x = f32::NAN;
@@ -204,6 +205,31 @@ fn nan_and_silence_do_not_poison_the_analysis() {
     let a = run(&signal, AnalysisSettings::default(), 333);
     let s = a.snapshot();
     assert!(s.map.values_db.iter().all(|v| v.is_finite()));
+    // Every number the editor shows recovers too once the bad samples have passed: meters,
+    // W loudness and DirAC hold no NaN (−∞ would be allowed for silence; there is none here).
+    for status in &s.channel_status {
+        let r = &status.reading;
+        for v in [
+            r.sample_peak_dbfs,
+            r.true_peak_dbtp,
+            r.rms_dbfs,
+            r.dc_offset,
+            status.sn3d_level_dbfs,
+        ] {
+            assert!(v.is_finite(), "channel {} reading {v}", status.input_index);
+        }
+    }
+    let o = &s.omni;
+    for v in [o.sample_peak_dbfs, o.true_peak_dbtp, o.rms_dbfs] {
+        assert!(v.is_finite(), "W reading {v}");
+    }
+    for v in [o.momentary_lufs, o.short_term_lufs, o.integrated_lufs] {
+        assert!(v.is_some_and(f64::is_finite), "W loudness {v:?}");
+    }
+    for band in &s.intensity {
+        assert!(band.diffuseness.is_some_and(|d| (0.0..=1.0).contains(&d)));
+        assert!(band.w_level_dbfs.is_finite());
+    }
     assert!(s.sources[0].direction.angle_to_deg(&d) < 1.5);
     assert!(
         s.findings
