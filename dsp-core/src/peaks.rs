@@ -101,11 +101,7 @@ impl PeakFinder {
                     .zip(right.chunks_exact(8));
                 let grouped = centre.len() - centre.len() % 8;
                 for (g, ((c8, l8), r8)) in groups.enumerate() {
-                    let mut marks = 0u32;
-                    for lane in 0..8 {
-                        let hit = is_candidate(l8[lane], c8[lane], r8[lane], threshold);
-                        marks |= u32::from(hit) << lane;
-                    }
+                    let mut marks = candidate_marks(l8, c8, r8, threshold);
                     while marks != 0 {
                         let lane = marks.trailing_zeros() as usize;
                         marks &= marks - 1;
@@ -248,6 +244,52 @@ fn is_candidate(left: f32, value: f32, right: f32, threshold: f32) -> bool {
     (value.abs() <= f32::MAX) & !(value < threshold) & !(left >= value) & !(right > value)
 }
 
+/// [`is_candidate`] for 8 neighbouring pixels at once; bit `lane` set when pixel `lane`
+/// passes. The slices hold at least 8 values.
+#[inline(always)]
+fn candidate_marks(left: &[f32], centre: &[f32], right: &[f32], threshold: f32) -> u32 {
+    assert!(left.len() >= 8 && centre.len() >= 8 && right.len() >= 8);
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::x86_64::*;
+        // SAFETY: SSE2 is part of every x86-64 CPU; each unaligned load reads 4 values at an
+        // offset of 0 or 4 of a slice that holds at least 8 (asserted above).
+        unsafe {
+            let floor = _mm_set1_ps(threshold);
+            let largest = _mm_set1_ps(f32::MAX);
+            let magnitude = _mm_castsi128_ps(_mm_set1_epi32(0x7fff_ffff));
+            let mut marks = 0u32;
+            for offset in [0, 4] {
+                let v = _mm_loadu_ps(centre.as_ptr().add(offset));
+                let l = _mm_loadu_ps(left.as_ptr().add(offset));
+                let r = _mm_loadu_ps(right.as_ptr().add(offset));
+                let finite = _mm_cmple_ps(_mm_and_ps(v, magnitude), largest);
+                let above_floor = _mm_cmpnlt_ps(v, floor);
+                let beats_left = _mm_cmpnge_ps(l, v);
+                let holds_right = _mm_cmpngt_ps(r, v);
+                let all = _mm_and_ps(
+                    _mm_and_ps(finite, above_floor),
+                    _mm_and_ps(beats_left, holds_right),
+                );
+                marks |= (_mm_movemask_ps(all) as u32) << offset;
+            }
+            marks
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    {
+        (0..8).fold(0u32, |marks, lane| {
+            marks
+                | u32::from(is_candidate(
+                    left[lane],
+                    centre[lane],
+                    right[lane],
+                    threshold,
+                )) << lane
+        })
+    }
+}
+
 /// Largest finite value of `map` (−∞ if none). Eight lanes, so the loop vectorises.
 fn finite_max(map: &[f32]) -> f32 {
     let mut lanes = [f32::NEG_INFINITY; 8];
@@ -266,4 +308,52 @@ fn finite_max(map: &[f32]) -> f32 {
         .filter(|v| v.is_finite())
         .fold(f32::NEG_INFINITY, f32::max);
     lanes.iter().fold(tail, |m, &l| m.max(l))
+}
+
+#[cfg(test)]
+mod candidate_tests {
+    use super::*;
+
+    /// The 8-wide pre-test must agree with the plain one on every pixel, NaN and ±∞ included.
+    #[test]
+    fn eight_wide_pre_test_matches_the_plain_one() {
+        let specials = [
+            f32::NAN,
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            0.0,
+            0.5,
+            0.5,
+            1.0,
+        ];
+        let mut state = 12345u64;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            state >> 33
+        };
+        for _ in 0..2_000 {
+            let line: Vec<f32> = (0..10)
+                .map(|_| {
+                    let r = next();
+                    if r % 5 == 0 {
+                        specials[(r / 5) as usize % specials.len()]
+                    } else {
+                        (r % 1000) as f32 / 1000.0
+                    }
+                })
+                .collect();
+            let threshold = (next() % 1000) as f32 / 2000.0;
+            let marks = candidate_marks(&line[..8], &line[1..9], &line[2..10], threshold);
+            for lane in 0..8 {
+                let plain = is_candidate(line[lane], line[lane + 1], line[lane + 2], threshold);
+                assert_eq!(
+                    marks >> lane & 1 == 1,
+                    plain,
+                    "{line:?} threshold {threshold}"
+                );
+            }
+        }
+    }
 }
