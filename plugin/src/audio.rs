@@ -104,27 +104,9 @@ impl EngineHost {
 }
 
 /// Copies the automatable parameters (plain atomics) into the control cell; safe on the audio
-/// thread. Persisted editor state (hold, whole-session map) is applied by the editor.
+/// thread (the cell's store compares first, so an unchanged value costs a few atomic loads).
+/// Persisted editor state (hold, whole-session map) is applied by the editor.
 #[inline]
 pub fn apply_parameters(params: &FieldglassParams, control: &EngineControl) {
-    let format = params.assumed_format.value().format();
-    let method = params.method.value().method();
-    let band = params.band.value().band();
-    let time_constant_ms = f64::from(params.time_constant_ms.value());
-    let tolerance_db = f64::from(params.over_omni_tolerance_db.value());
-    let current = control.load();
-    if current.assumed_format != format
-        || current.method != method
-        || current.band != band
-        || current.time_constant_ms != time_constant_ms
-        || current.over_omni_tolerance_db != tolerance_db
-    {
-        control.update(|s| {
-            s.assumed_format = format;
-            s.method = method;
-            s.band = band;
-            s.time_constant_ms = time_constant_ms;
-            s.over_omni_tolerance_db = tolerance_db;
-        });
-    }
+    control.update(|settings| params.copy_automatable_into(settings));
 }

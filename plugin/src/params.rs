@@ -8,7 +8,7 @@
 //!
 //! Parameter IDs are part of saved sessions and must never change.
 
-use fieldglass_dsp::engine::{Band, EngineControl, MapMethod};
+use fieldglass_dsp::engine::{AnalysisSettings, Band, EngineControl, MapMethod};
 use fieldglass_dsp::format::AmbiFormat;
 use nice_plug::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -267,19 +267,21 @@ impl FieldglassParams {
     /// display-only and not copied.
     pub fn apply_to(&self, control: &EngineControl) {
         let view = self.view_settings();
-        let assumed_format = self.assumed_format.value().format();
-        let method = self.method.value().method();
-        let band = self.band.value().band();
-        let time_constant_ms = self.time_constant_ms.value() as f64;
-        let tolerance_db = self.over_omni_tolerance_db.value() as f64;
         control.update(|settings| {
-            settings.assumed_format = assumed_format;
-            settings.method = method;
-            settings.band = band;
-            settings.time_constant_ms = time_constant_ms;
-            settings.over_omni_tolerance_db = tolerance_db;
+            self.copy_automatable_into(settings);
             settings.hold = view.hold;
             settings.show_integrated = view.show_integrated;
         });
+    }
+
+    /// Writes the automatable parameters that the analysis uses into `settings`. Reads plain
+    /// atomics only, so the audio thread may call it.
+    #[inline]
+    pub fn copy_automatable_into(&self, settings: &mut AnalysisSettings) {
+        settings.assumed_format = self.assumed_format.value().format();
+        settings.method = self.method.value().method();
+        settings.band = self.band.value().band();
+        settings.time_constant_ms = f64::from(self.time_constant_ms.value());
+        settings.over_omni_tolerance_db = f64::from(self.over_omni_tolerance_db.value());
     }
 }
