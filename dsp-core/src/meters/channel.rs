@@ -2,8 +2,7 @@
 
 use std::fmt;
 
-use super::abs_max;
-use super::true_peak::{CHUNK, TruePeakMeter, all_finite};
+use super::true_peak::{CHUNK, TruePeakMeter};
 use super::{LEVEL_FLOOR_DB, amplitude_to_db, mean_square_to_db};
 
 /// Settings of a [`ChannelMeters`] strip.
@@ -327,20 +326,14 @@ impl ChannelMeters {
                 let room = self.segment_len - state.current_fill;
                 let n = room.min(samples.len() - offset).min(CHUNK);
                 let piece = &samples[offset..offset + n];
-                let true_peak = state.true_peak.push(piece);
-                let finite = all_finite(piece);
+                // The true-peak filter already scans the piece: take its sample peak and
+                // its count of non-finite samples.
+                let peaks = state.true_peak.measure(piece);
+                let finite = peaks.invalid_samples == 0;
                 state.lanes.add(piece, state.current_fill, finite);
                 let seg = &mut state.current;
-                let (peak, valid) = if finite {
-                    (abs_max(piece), n as u64)
-                } else {
-                    let valid = piece.iter().filter(|x| x.is_finite()).count() as u64;
-                    let peak = piece
-                        .iter()
-                        .filter(|x| x.is_finite())
-                        .fold(0.0f32, |m, x| m.max(x.abs()));
-                    (peak, valid)
-                };
+                let (peak, valid) = (peaks.sample_peak, n as u64 - peaks.invalid_samples);
+                let true_peak = peaks.true_peak;
                 // Clips are rare: count only when the peak says there is something to count.
                 if peak >= clip_threshold {
                     state.clip_count += piece

@@ -71,7 +71,7 @@ const TRUE_PEAK_PHASES_F32: [[f32; TAPS_PER_PHASE]; TRUE_PEAK_OVERSAMPLING] = {
 };
 
 /// True when no sample is NaN or ±∞ (eight lanes, so the loop vectorises).
-pub(super) fn all_finite(samples: &[f32]) -> bool {
+fn all_finite(samples: &[f32]) -> bool {
     let mut lanes = [true; 8];
     let mut chunks = samples.chunks_exact(8);
     for chunk in &mut chunks {
@@ -147,6 +147,17 @@ fn interpolated_peak_portable(ext: &[f32; CHUNK + TAPS_PER_PHASE - 1], n: usize)
     peak
 }
 
+/// What [`TruePeakMeter::measure`] found in a block.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct BlockPeaks {
+    /// Largest |x| of the finite samples.
+    pub sample_peak: f32,
+    /// True peak (linear), never below the sample peak.
+    pub true_peak: f64,
+    /// NaN and ±∞ samples in the block.
+    pub invalid_samples: u64,
+}
+
 /// Streaming true-peak meter (BS.1770-4 Annex 2): each input sample yields 4 interpolated
 /// samples from the 4-phase FIR; the meter keeps the largest magnitude of those and of the
 /// input sample itself (common practice: a true peak never reads below the sample peak).
@@ -176,25 +187,38 @@ impl TruePeakMeter {
     /// it produced.
     #[inline]
     pub fn process_sample(&mut self, sample: f32) -> f64 {
-        self.process_chunk(std::slice::from_ref(&sample))
+        self.process_chunk(std::slice::from_ref(&sample)).true_peak
     }
 
     /// Feeds a block; returns the block's true peak (linear). Never allocates.
     pub fn push(&mut self, samples: &[f32]) -> f64 {
-        samples
-            .chunks(CHUNK)
-            .fold(0.0_f64, |peak, chunk| peak.max(self.process_chunk(chunk)))
+        self.measure(samples).true_peak
     }
 
-    /// Feeds up to [`CHUNK`] samples; returns the largest |·| of the samples and of the
-    /// interpolated samples they produced.
+    /// Feeds a block; returns its true peak together with what the filter learnt on the way
+    /// (sample peak and non-finite count), so a caller need not scan the block again.
+    pub fn measure(&mut self, samples: &[f32]) -> BlockPeaks {
+        samples
+            .chunks(CHUNK)
+            .fold(BlockPeaks::default(), |total, chunk| {
+                let piece = self.process_chunk(chunk);
+                BlockPeaks {
+                    sample_peak: total.sample_peak.max(piece.sample_peak),
+                    true_peak: total.true_peak.max(piece.true_peak),
+                    invalid_samples: total.invalid_samples + piece.invalid_samples,
+                }
+            })
+    }
+
+    /// Feeds up to [`CHUNK`] samples; the true peak is the largest |·| of the samples and of
+    /// the interpolated samples they produced.
     ///
     /// Each output is summed tap by tap in the same order whatever the chunking, so results do
     /// not depend on block sizes.
-    fn process_chunk(&mut self, chunk: &[f32]) -> f64 {
+    fn process_chunk(&mut self, chunk: &[f32]) -> BlockPeaks {
         let n = chunk.len().min(CHUNK);
         if n == 0 {
-            return 0.0;
+            return BlockPeaks::default();
         }
         // ext = [11 previous samples, oldest first | the chunk, sanitised]
         let mut ext = [0.0f32; CHUNK + TAPS_PER_PHASE - 1];
@@ -203,22 +227,29 @@ impl TruePeakMeter {
         }
         let fresh = &mut ext[TAPS_PER_PHASE - 1..TAPS_PER_PHASE - 1 + n];
         fresh.copy_from_slice(&chunk[..n]);
+        let mut invalid_samples = 0;
         if !all_finite(fresh) {
             for e in fresh.iter_mut() {
                 if !e.is_finite() {
                     *e = 0.0;
-                    self.invalid_sample_count += 1;
+                    invalid_samples += 1;
                 }
             }
         }
-        let mut peak = super::abs_max(fresh);
-        peak = peak.max(interpolated_peak(&ext, n));
+        self.invalid_sample_count += invalid_samples;
+        // Non-finite samples are 0 here, so this is the peak of the finite ones.
+        let sample_peak = super::abs_max(fresh);
+        let peak = sample_peak.max(interpolated_peak(&ext, n));
         for (k, h) in self.history.iter_mut().enumerate() {
             *h = ext[TAPS_PER_PHASE - 1 + n - 1 - k];
         }
         let peak = f64::from(peak);
         self.max_abs = self.max_abs.max(peak);
-        peak
+        BlockPeaks {
+            sample_peak,
+            true_peak: peak,
+            invalid_samples,
+        }
     }
 
     /// Largest interpolated magnitude since construction or the last reset (linear, 1.0 = full
