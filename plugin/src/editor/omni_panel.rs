@@ -16,6 +16,14 @@ fn lufs_text(value: Option<f64>) -> String {
     }
 }
 
+/// One grid row: name, reading, and the since-reset maximum (dimmed) where there is one.
+fn row(ui: &mut egui::Ui, name: &str, reading: egui::RichText, max: Option<String>) {
+    ui.label(name);
+    ui.label(reading);
+    ui.label(egui::RichText::new(max.unwrap_or_default()).color(theme::TEXT_DIM));
+    ui.end_row();
+}
+
 pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn EditorHost) {
     ui.heading("Omni");
     let Some(snapshot) = snapshot else {
@@ -28,48 +36,47 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
         .num_columns(3)
         .spacing([12.0, 3.0])
         .show(ui, |ui| {
-            ui.label("W sample peak");
-            ui.label(format!("{} dBFS", theme::format_db(omni.sample_peak_dbfs)));
-            ui.label("");
-            ui.end_row();
-            ui.label("W true peak");
-            let true_peak =
-                egui::RichText::new(format!("{} dBTP", theme::format_db(omni.true_peak_dbtp)));
-            ui.label(if omni.true_peak_dbtp > 0.0 {
+            let db = theme::format_db;
+            row(
+                ui,
+                "W sample peak",
+                format!("{} dBFS", db(omni.sample_peak_dbfs)).into(),
+                None,
+            );
+            let true_peak = egui::RichText::new(format!("{} dBTP", db(omni.true_peak_dbtp)));
+            let true_peak = if omni.true_peak_dbtp > 0.0 {
                 true_peak.color(theme::CLIP)
             } else {
                 true_peak
-            });
-            ui.label(
-                egui::RichText::new(format!(
-                    "max {} dBTP",
-                    theme::format_db(omni.max_true_peak_dbtp)
-                ))
-                .color(theme::TEXT_DIM),
+            };
+            let max_true_peak = format!("max {} dBTP", db(omni.max_true_peak_dbtp));
+            row(ui, "W true peak", true_peak, Some(max_true_peak));
+            row(
+                ui,
+                "W RMS",
+                format!("{} dBFS", db(omni.rms_dbfs)).into(),
+                None,
             );
-            ui.end_row();
-            ui.label("W RMS");
-            ui.label(format!("{} dBFS", theme::format_db(omni.rms_dbfs)));
-            ui.label("");
-            ui.end_row();
-            ui.label("Momentary");
-            ui.label(lufs_text(omni.momentary_lufs));
-            ui.label(
-                egui::RichText::new(format!("max {}", lufs_text(omni.max_momentary_lufs)))
-                    .color(theme::TEXT_DIM),
+            let max_momentary = format!("max {}", lufs_text(omni.max_momentary_lufs));
+            row(
+                ui,
+                "Momentary",
+                lufs_text(omni.momentary_lufs).into(),
+                Some(max_momentary),
             );
-            ui.end_row();
-            ui.label("Short-term");
-            ui.label(lufs_text(omni.short_term_lufs));
-            ui.label(
-                egui::RichText::new(format!("max {}", lufs_text(omni.max_short_term_lufs)))
-                    .color(theme::TEXT_DIM),
+            let max_short_term = format!("max {}", lufs_text(omni.max_short_term_lufs));
+            row(
+                ui,
+                "Short-term",
+                lufs_text(omni.short_term_lufs).into(),
+                Some(max_short_term),
             );
-            ui.end_row();
-            ui.label("Integrated");
-            ui.label(lufs_text(omni.integrated_lufs));
-            ui.label("");
-            ui.end_row();
+            row(
+                ui,
+                "Integrated",
+                lufs_text(omni.integrated_lufs).into(),
+                None,
+            );
         });
     if ui.button("Reset loudness").clicked() {
         host.request(Request::ResetLoudness);

@@ -97,15 +97,30 @@ impl Canvas {
 
     /// Ring of outer radius `r` and thickness `t` (pixels), antialiased at its edges.
     pub fn ring(&mut self, cx: f64, cy: f64, r: f64, t: f64, colour: [u8; 3]) {
+        self.blend_by_distance(cx, cy, r, colour, |d| {
+            (r - d + 0.5).clamp(0.0, 1.0) * (d - (r - t) + 0.5).clamp(0.0, 1.0)
+        });
+    }
+
+    /// Blends `colour` into every pixel within `r` + 1 of (cx, cy), weighted by
+    /// `coverage(distance from the centre to the pixel centre)`.
+    fn blend_by_distance(
+        &mut self,
+        cx: f64,
+        cy: f64,
+        r: f64,
+        colour: [u8; 3],
+        coverage: impl Fn(f64) -> f64,
+    ) {
         let reach = (r + 1.0).ceil() as i64;
         for dy in -reach..=reach {
             for dx in -reach..=reach {
                 let x = cx.floor() as i64 + dx;
                 let y = cy.floor() as i64 + dy;
                 let d = ((x as f64 + 0.5 - cx).powi(2) + (y as f64 + 0.5 - cy).powi(2)).sqrt();
-                let coverage = (r - d + 0.5).clamp(0.0, 1.0) * (d - (r - t) + 0.5).clamp(0.0, 1.0);
-                if coverage > 0.0 {
-                    self.blend(x, y, colour, coverage as f32);
+                let c = coverage(d);
+                if c > 0.0 {
+                    self.blend(x, y, colour, c as f32);
                 }
             }
         }
@@ -113,18 +128,9 @@ impl Canvas {
 
     /// Filled disc of radius `r`.
     pub fn disc(&mut self, cx: f64, cy: f64, r: f64, colour: [u8; 3], alpha: f32) {
-        let reach = (r + 1.0).ceil() as i64;
-        for dy in -reach..=reach {
-            for dx in -reach..=reach {
-                let x = cx.floor() as i64 + dx;
-                let y = cy.floor() as i64 + dy;
-                let d = ((x as f64 + 0.5 - cx).powi(2) + (y as f64 + 0.5 - cy).powi(2)).sqrt();
-                let coverage = (r - d + 0.5).clamp(0.0, 1.0) as f32;
-                if coverage > 0.0 {
-                    self.blend(x, y, colour, coverage * alpha);
-                }
-            }
-        }
+        self.blend_by_distance(cx, cy, r, colour, |d| {
+            (r - d + 0.5).clamp(0.0, 1.0) * f64::from(alpha)
+        });
     }
 
     /// Draws `text` with its top-left corner at (x, y), each font pixel `scale` pixels wide.
