@@ -4,6 +4,12 @@
 use crate::sphere::Direction;
 use crate::sphere::grid::EquirectGrid;
 
+/// A peak is a source only where it stands this far above the map's diffuse floor, dB. The
+/// floor is the median map value: in a scene with a diffuse bed most directions see only the
+/// bed, so the median is the bed's level, and the bed's own ripples (finite averaging, side
+/// lobes of the beam) stay within a few dB of it.
+pub const SOURCE_PROMINENCE_DB: f64 = 3.0;
+
 /// One peak of a power map.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Peak {
@@ -24,6 +30,8 @@ pub struct PeakFinder {
     max_peaks: usize,
     /// (value, pixel index) of local maxima above the floor.
     candidates: Vec<(f32, u32)>,
+    /// Copy of the map for the median.
+    scratch: Vec<f32>,
     peaks: Vec<Peak>,
 }
 
@@ -34,6 +42,7 @@ impl PeakFinder {
             grid,
             max_peaks,
             candidates: Vec::with_capacity(grid.len()),
+            scratch: Vec::with_capacity(grid.len()),
             peaks: Vec::with_capacity(max_peaks),
         }
     }
@@ -51,7 +60,8 @@ impl PeakFinder {
     ///   the row and along the column independently; the value adds both parabolic corrections.
     /// - Peaks closer than `min_separation_deg` (great-circle) to a stronger accepted peak are
     ///   dropped, as are peaks more than `floor_db` (a positive number of dB) below the
-    ///   strongest.
+    ///   strongest, and peaks that do not stand [`SOURCE_PROMINENCE_DB`] above the map's
+    ///   median (its diffuse floor): a map with no such peak has no sources.
     ///
     /// Returns an empty slice if the map has the wrong size, no positive finite maximum, or
     /// `max_peaks` is 0. Non-finite pixels are ignored.
@@ -66,7 +76,12 @@ impl PeakFinder {
             return &self.peaks;
         }
         let floor_ratio = 10f64.powf(-floor_db.abs() / 10.0);
-        let threshold = (maximum as f64 * floor_ratio) as f32;
+        let prominence = 10f64.powf(SOURCE_PROMINENCE_DB / 10.0);
+        let diffuse_floor = self.median(map) as f64;
+        let threshold = (maximum as f64 * floor_ratio).max(diffuse_floor * prominence) as f32;
+        if maximum < threshold {
+            return &self.peaks;
+        }
 
         let (width, height) = (self.grid.width(), self.grid.height());
         if width == 0 {
@@ -139,6 +154,21 @@ impl PeakFinder {
             peak.level_db = 10.0 * (peak.value / reference).log10();
         }
         &self.peaks
+    }
+
+    /// Median of the finite values of `map` (0 if none). Never allocates.
+    fn median(&mut self, map: &[f32]) -> f32 {
+        self.scratch.clear();
+        self.scratch
+            .extend(map.iter().copied().filter(|v| v.is_finite()));
+        if self.scratch.is_empty() {
+            return 0.0;
+        }
+        let middle = self.scratch.len() / 2;
+        *self
+            .scratch
+            .select_nth_unstable_by(middle, f32::total_cmp)
+            .1
     }
 
     /// The peaks found by the last call to [`find`](Self::find).

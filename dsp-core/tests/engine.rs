@@ -303,3 +303,116 @@ fn fuma_above_third_order_is_refused_with_a_reason_and_the_analysis_goes_on() {
     assert!(snapshot.format_not_applied.is_some());
     thread.stop();
 }
+
+#[test]
+fn sources_taking_turns_are_directional_over_the_programme() {
+    // DirAC diffuseness is a short-time measure (Pulkki 2007): a source at +90° for 2 s, then
+    // one at −90° for 2 s is two plane waves one after the other, not a diffuse field. Averaging
+    // the covariance over the programme first would cancel the intensity and read ψ = 1.
+    let left = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[(Direction::new(90.0, 0.0), 0.2)],
+        None,
+        2.0,
+    );
+    let right = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[(Direction::new(-90.0, 0.0), 0.2)],
+        None,
+        2.0,
+    );
+    let signal: Vec<Vec<f32>> = left
+        .iter()
+        .zip(&right)
+        .map(|(a, b)| a.iter().chain(b).copied().collect())
+        .collect();
+    let mut a = run(&signal, AnalysisSettings::default(), 1024);
+    let summary = a.programme_summary();
+    for band in Band::ALL {
+        let psi = summary.diffuseness[band.index()].unwrap();
+        assert!(psi < 0.05, "{band:?}: ψ = {psi}");
+        let report = a.integrated_intensity(band).diffuseness.unwrap();
+        assert_eq!(report, psi, "one figure, one place");
+    }
+}
+
+#[test]
+fn programme_diffuseness_of_a_diffuse_field_is_near_one() {
+    // Isotropic diffuse field → ψ → 1 (Pulkki 2007). Short-time values carry the finite-averaging
+    // bias of a 100 ms window; the full band (hundreds of bins) keeps it small.
+    let signal = encode(1, AmbiFormat::ACN_SN3D, &[], Some((200, 0.05)), 3.0);
+    let a = run(&signal, AnalysisSettings::default(), 1024);
+    let summary = a.programme_summary();
+    for band in Band::ALL {
+        let psi = summary.diffuseness[band.index()].unwrap();
+        eprintln!("{band:?}: programme ψ = {psi:.3}");
+    }
+    let full = summary.diffuseness[Band::Full.index()].unwrap();
+    assert!(full > 0.9, "full band ψ = {full}");
+}
+
+#[test]
+fn a_diffuse_bed_alone_has_no_sources_and_a_source_over_it_has_one() {
+    // A peak counts as a source only where it stands out from the map's diffuse floor: the
+    // ripples of a diffuse bed (finite averaging) are not sources.
+    let bed = encode(3, AmbiFormat::ACN_SN3D, &[], Some((300, 0.02)), 2.0);
+    let a = run(&bed, AnalysisSettings::default(), 1024);
+    assert!(
+        a.snapshot().sources.is_empty(),
+        "{:?}",
+        a.snapshot().sources
+    );
+    let d = Direction::new(-60.0, 20.0);
+    let scene = encode(3, AmbiFormat::ACN_SN3D, &[(d, 0.2)], Some((300, 0.02)), 2.0);
+    let a = run(&scene, AnalysisSettings::default(), 1024);
+    let sources = &a.snapshot().sources;
+    assert_eq!(sources.len(), 1, "{sources:?}");
+    assert!(sources[0].direction.angle_to_deg(&d) < 3.0, "{sources:?}");
+}
+
+#[test]
+fn fuma_w_is_shown_beside_its_sn3d_equivalent() {
+    // FuMa's W carries −3.01 dB (1/√2, DESIGN.md conventions): the SN3D-equivalent W is 3.01 dB
+    // above the stored one, and the snapshot says so.
+    let d = Direction::new(30.0, 0.0);
+    let signal = encode(1, AmbiFormat::FUMA, &[(d, 0.2)], None, 1.0);
+    let settings = AnalysisSettings {
+        assumed_format: AmbiFormat::FUMA,
+        ..Default::default()
+    };
+    let a = run(&signal, settings, 1024);
+    let gain = 20.0 * std::f64::consts::SQRT_2.log10();
+    assert!((a.snapshot().omni.conversion_gain_db - gain).abs() < 1e-9);
+    let omni = a.programme_summary().omni;
+    assert!((omni.conversion_gain_db - gain).abs() < 1e-9);
+    let stored_w = a.programme_summary().channels[0].rms_dbfs;
+    assert!((omni.as_stored(omni.rms_dbfs) - stored_w).abs() < 1e-9);
+}
+
+#[test]
+fn new_band_edges_restart_the_split_bands_and_a_reset_clears_the_verdict() {
+    let d = Direction::new(0.0, 0.0);
+    let signal = encode(2, AmbiFormat::ACN_SN3D, &[(d, 0.2)], None, 2.0);
+    let mut a = run(&signal, AnalysisSettings::default(), 1024);
+    assert!(a.snapshot().format_check.ready);
+    let before = a.integrated_intensity(Band::Full).w_level_dbfs;
+    let settings = AnalysisSettings {
+        band_edges_hz: [500.0, 6000.0],
+        ..*a.settings()
+    };
+    a.apply_settings(settings).unwrap();
+    // The split bands hold nothing until new frames arrive; the full band is kept.
+    for band in [Band::Low, Band::Mid, Band::High] {
+        assert!(
+            a.integrated_intensity(band).diffuseness.is_none(),
+            "{band:?}"
+        );
+        assert_eq!(a.programme_summary().diffuseness[band.index()], None);
+    }
+    assert_eq!(a.integrated_intensity(Band::Full).w_level_dbfs, before);
+    a.reset_integrated();
+    a.finish();
+    assert!(!a.snapshot().format_check.ready);
+}

@@ -7,7 +7,8 @@
 //! maps, sources, DirAC, format check and findings.
 
 use super::control::AnalysisSettings;
-use super::findings::collect_findings;
+use super::diffuseness::{DiffusenessTracker, FirstOrderMoments};
+use super::findings::{collect_findings, order_deficit};
 use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
 use super::snapshot::*;
@@ -88,7 +89,10 @@ pub struct Analyzer {
     live: Vec<Vec<f64>>,
     /// Whole-programme sum of frame covariances per band.
     integrated: Vec<Vec<f64>>,
-    integrated_frames: u64,
+    /// STFT frames summed into `integrated`, per band (split bands restart when their edges move).
+    integrated_frames: [u64; BAND_COUNT],
+    /// Short-time DirAC, averaged over the programme.
+    diffuseness: DiffusenessTracker,
     frames_since_map: usize,
     frames_since_check: usize,
     maps: MapMaker,
@@ -127,6 +131,7 @@ impl Analyzer {
             .map_err(|e| EngineError::Settings(e.to_string()))?;
         let m = layout.spatial_channels;
         let covariance = BandCovariance::new(m, setup.sample_rate_hz, settings.band_edges_hz);
+        let diffuseness = DiffusenessTracker::new(covariance.framing().hop, setup.sample_rate_hz);
         let grid = grid_for(settings.grid_step_deg)?;
         let checker =
             FormatChecker::new(layout.order).map_err(|e| EngineError::Settings(e.to_string()))?;
@@ -142,7 +147,8 @@ impl Analyzer {
             covariance,
             live: vec![vec![0.0; m * m]; BAND_COUNT],
             integrated: vec![vec![0.0; m * m]; BAND_COUNT],
-            integrated_frames: 0,
+            integrated_frames: [0; BAND_COUNT],
+            diffuseness,
             frames_since_map: 0,
             frames_since_check: usize::MAX / 2,
             maps,
@@ -202,6 +208,8 @@ impl Analyzer {
                 Ok(conversion) => {
                     self.conversion = conversion;
                     self.loudness.reset();
+                    // Short-time DirAC is formed after conversion; the raw covariances stay.
+                    self.diffuseness.reset();
                     self.format_not_applied = None;
                 }
                 Err(e) => {
@@ -217,6 +225,14 @@ impl Analyzer {
         if settings.band_edges_hz != self.settings.band_edges_hz {
             self.covariance
                 .set_band_edges(self.setup.sample_rate_hz, settings.band_edges_hz);
+            // What the split bands accumulated belongs to the old edges; the full band stays.
+            for band in [Band::Low, Band::Mid, Band::High] {
+                let b = band.index();
+                self.live[b].fill(0.0);
+                self.integrated[b].fill(0.0);
+                self.integrated_frames[b] = 0;
+                self.diffuseness.reset_band(b);
+            }
         }
         if settings.grid_step_deg != self.settings.grid_step_deg
             || settings.max_sources != self.settings.max_sources
@@ -245,11 +261,22 @@ impl Analyzer {
         self.loudness.reset();
     }
 
+    /// Starts a new whole programme (the whole-session view): integrated covariances, the
+    /// format check's evidence, diffuseness and the per-channel programme figures. Loudness
+    /// and clip counts have their own resets.
     pub fn reset_integrated(&mut self) {
         for r in &mut self.integrated {
             r.fill(0.0);
         }
-        self.integrated_frames = 0;
+        self.integrated_frames = [0; BAND_COUNT];
+        self.diffuseness.reset();
+        self.programme = ProgrammeSums {
+            sum: vec![0.0; self.setup.channels],
+            sum_squares: vec![0.0; self.setup.channels],
+            frames: 0,
+        };
+        self.snapshot.format_check = Default::default();
+        self.frames_since_check = usize::MAX / 2;
     }
 
     pub fn reset_clips(&mut self) {
@@ -272,11 +299,13 @@ impl Analyzer {
         let m = self.layout.spatial_channels;
         let alpha = self.integration_factor();
         let hold = self.settings.hold;
-        let (live, integrated, count) = (
+        let (live, integrated, count, diffuseness) = (
             &mut self.live,
             &mut self.integrated,
             &mut self.integrated_frames,
+            &mut self.diffuseness,
         );
+        let conversion = &self.conversion;
         self.covariance.push(&block[..m.min(block.len())], |bands| {
             for (b, frame) in bands.iter().enumerate() {
                 if !hold {
@@ -287,8 +316,11 @@ impl Analyzer {
                 for (s, &f) in integrated[b].iter_mut().zip(frame) {
                     *s += f;
                 }
+                count[b] += 1;
+                if m >= 4 {
+                    diffuseness.push(b, &first_order_moments(frame, m, conversion));
+                }
             }
-            *count += 1;
         });
 
         self.time_s += frames as f64 / self.setup.sample_rate_hz;
@@ -363,12 +395,11 @@ impl Analyzer {
         self.loudness.push(&self.w_scratch[..frames]);
     }
 
-    /// 1 / frames in the whole-programme accumulator (0 before the first frame).
-    fn integrated_scale(&self) -> f64 {
-        if self.integrated_frames > 0 {
-            1.0 / self.integrated_frames as f64
-        } else {
-            0.0
+    /// 1 / frames in the whole-programme accumulator of `band` (0 before the first frame).
+    fn integrated_scale(&self, band: usize) -> f64 {
+        match self.integrated_frames[band] {
+            0 => 0.0,
+            n => 1.0 / n as f64,
         }
     }
 
@@ -377,7 +408,7 @@ impl Analyzer {
     fn load_sn3d(&mut self, band: usize, integrated: bool) {
         let m = self.layout.spatial_channels;
         let (raw, scale) = if integrated {
-            (&self.integrated[band], self.integrated_scale())
+            (&self.integrated[band], self.integrated_scale(band))
         } else {
             (&self.live[band], 1.0)
         };
@@ -482,6 +513,7 @@ impl Analyzer {
         let w_gain_db = 20.0 * self.conversion.gain(0).abs().log10();
         let w = self.meters.reading(w_input).unwrap_or_default();
         let omni = &mut self.snapshot.omni;
+        omni.conversion_gain_db = w_gain_db;
         omni.sample_peak_dbfs = w.sample_peak_dbfs + w_gain_db;
         omni.true_peak_dbtp = w.true_peak_dbtp + w_gain_db;
         omni.max_true_peak_dbtp = w.max_true_peak_dbtp + w_gain_db;
@@ -493,24 +525,142 @@ impl Analyzer {
         omni.max_short_term_lufs = self.loudness.max_short_term_lufs();
     }
 
+    /// The format check on the whole-programme full-band covariance (the JSON and the report
+    /// call its balance and effective order "whole programme", so it covers every frequency).
+    /// Readiness counts the audio in analysed STFT frames, so a reset clears it.
     fn run_format_check(&mut self) {
         let m = self.layout.spatial_channels;
-        // Prefer the mid band (least affected by microphone-array noise at the band edges);
-        // fall back to the full band when the mid band is empty.
-        let mid = &self.integrated[Band::Mid.index()];
-        let band = if mid[0] > 0.0 { Band::Mid } else { Band::Full };
-        let raw = &self.integrated[band.index()];
-        let scale = self.integrated_scale();
-        let cov: Vec<f64> = raw.iter().map(|v| v * scale).collect();
+        let full = Band::Full.index();
+        let scale = self.integrated_scale(full);
+        let cov: Vec<f64> = self.integrated[full].iter().map(|v| v * scale).collect();
         let mean_square = self.programme_mean_square();
         let input = FormatCheckInput {
             raw_covariance: &cov,
             order: self.layout.order,
             assumed: self.settings.assumed_format,
             channel_mean_square: &mean_square[..m],
-            frames_seen: self.programme.frames,
+            frames_seen: self.integrated_frames[full] * self.covariance.framing().hop as u64,
         };
         self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
+        self.snapshot.programme = self.programme_summary();
+    }
+
+    /// The whole-programme summary as of now (see [`ProgrammeSummary`]); the format check in
+    /// it is the latest one.
+    pub fn programme_summary(&self) -> ProgrammeSummary {
+        let m = self.layout.spatial_channels;
+        let tolerance = self.settings.over_omni_tolerance_db;
+        let mean_square = self.programme_mean_square();
+        let mean = self.programme_mean();
+        let mut acn_of_input = [usize::MAX; 64];
+        for acn in 0..m {
+            acn_of_input[self.conversion.source_channel(acn)] = acn;
+        }
+        let acn_of = |c: usize| {
+            (c < m)
+                .then(|| acn_of_input[c])
+                .filter(|&a| a != usize::MAX)
+        };
+        let sn3d_mean_square = |c: usize| match acn_of(c) {
+            Some(a) => mean_square[c] * self.conversion.gain(a).powi(2),
+            None => mean_square[c],
+        };
+        let w_input = self.conversion.source_channel(0);
+        let w_sn3d = sn3d_mean_square(w_input);
+        let w_active = w_sn3d >= SILENT_MEAN_SQUARE;
+        let channels: Vec<ChannelProgramme> = (0..self.setup.channels)
+            .map(|c| {
+                let reading = self.meters.reading(c).unwrap_or_default();
+                let acn = acn_of(c);
+                let sn3d = sn3d_mean_square(c);
+                ChannelProgramme {
+                    input_index: c,
+                    acn,
+                    order: acn.map(|a| order_degree(a).0),
+                    degree: acn.map(|a| order_degree(a).1),
+                    sample_peak_dbfs: reading.max_sample_peak_dbfs,
+                    true_peak_dbtp: reading.max_true_peak_dbtp,
+                    rms_dbfs: mean_square_db(mean_square[c]),
+                    sn3d_rms_dbfs: mean_square_db(sn3d),
+                    clip_count: reading.clip_count,
+                    longest_clip_run: 0,
+                    invalid_samples: reading.invalid_sample_count,
+                    dc_offset: mean[c],
+                    over_omni: acn.is_some_and(|a| a != 0)
+                        && w_active
+                        && mean_square_db(sn3d) > mean_square_db(w_sn3d) + tolerance,
+                    silent: mean_square[c] < SILENT_MEAN_SQUARE,
+                }
+            })
+            .collect();
+        let w_gain_db = 20.0 * self.conversion.gain(0).abs().log10();
+        let w = self.meters.reading(w_input).unwrap_or_default();
+        let omni = OmniProgramme {
+            conversion_gain_db: w_gain_db,
+            sample_peak_dbfs: w.max_sample_peak_dbfs + w_gain_db,
+            true_peak_dbtp: w.max_true_peak_dbtp + w_gain_db,
+            rms_dbfs: mean_square_db(w_sn3d),
+            integrated_lufs: self.loudness.integrated_lufs(),
+            max_momentary_lufs: self.loudness.max_momentary_lufs(),
+            max_short_term_lufs: self.loudness.max_short_term_lufs(),
+        };
+        let check = &self.snapshot.format_check;
+        let mut summary = ProgrammeSummary {
+            duration_s: self.programme.frames as f64 / self.setup.sample_rate_hz,
+            channels,
+            order_balance_db: check.order_balance_db.clone(),
+            effective_order: check.effective_order,
+            diffuseness: std::array::from_fn(|b| self.diffuseness.mean(b)),
+            omni,
+            format_check: check.clone(),
+            findings: Vec::new(),
+        };
+        summary.findings = self.programme_findings(&summary);
+        summary
+    }
+
+    /// The engine's finding rules applied to whole-programme figures.
+    fn programme_findings(&self, summary: &ProgrammeSummary) -> Vec<Finding> {
+        let channel_status = summary
+            .channels
+            .iter()
+            .map(|c| {
+                let mut reading = self.meters.reading(c.input_index).unwrap_or_default();
+                reading.clip_count = c.clip_count;
+                reading.invalid_sample_count = c.invalid_samples;
+                reading.dc_offset = c.dc_offset;
+                reading.over_omni = c.over_omni;
+                reading.rms_dbfs = c.rms_dbfs;
+                ChannelStatus {
+                    input_index: c.input_index,
+                    acn: c.acn,
+                    order: c.order,
+                    degree: c.degree,
+                    reading,
+                    sn3d_level_dbfs: c.sn3d_rms_dbfs,
+                    over_omni: c.over_omni,
+                    silent: c.silent,
+                }
+            })
+            .collect();
+        let view = Snapshot {
+            order: self.layout.order,
+            channels: self.setup.channels,
+            assumed_format: self.settings.assumed_format,
+            channel_status,
+            format_check: summary.format_check.clone(),
+            ..Snapshot::default()
+        };
+        let mut findings = collect_findings(&view, &self.settings);
+        // Live, an order deficit waits for a format verdict (so that it does not flicker at the
+        // start); over a programme too short for a verdict the measured balance still holds.
+        let check = &summary.format_check;
+        let w_heard = check.order_balance_db.len() == self.layout.order + 1;
+        if !check.ready && w_heard && summary.effective_order < self.layout.order {
+            findings.push(order_deficit(self.layout.order, summary.effective_order));
+        }
+        findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
+        findings
     }
 
     /// Mean square of every input channel over the whole programme.
@@ -550,11 +700,42 @@ impl Analyzer {
         (map, sources)
     }
 
-    /// Whole-programme DirAC of `band`.
+    /// Whole-programme DirAC of `band`: direction and W level from the programme covariance,
+    /// diffuseness as the energy-weighted mean of short-time values.
     pub fn integrated_intensity(&mut self, band: Band) -> BandIntensity {
         self.load_sn3d(band.index(), true);
-        dirac(&self.r_sn3d, self.layout.spatial_channels)
+        let mut intensity = dirac(&self.r_sn3d, self.layout.spatial_channels);
+        if intensity.diffuseness.is_some() {
+            intensity.diffuseness = self.diffuseness.mean(band.index());
+        }
+        intensity
     }
+}
+
+fn mean_square_db(mean_square: f64) -> f64 {
+    if mean_square > 0.0 {
+        (10.0 * mean_square.log10()).max(LEVEL_FLOOR_DB)
+    } else {
+        LEVEL_FLOOR_DB
+    }
+}
+
+/// First-order SN3D moments of one raw frame covariance (M×M, input order) for DirAC.
+fn first_order_moments(raw: &[f64], m: usize, conversion: &ConversionPlan) -> FirstOrderMoments {
+    let entry = |a: usize, b: usize| {
+        let (sa, sb) = (conversion.source_channel(a), conversion.source_channel(b));
+        conversion.gain(a) * conversion.gain(b) * raw[sa * m + sb]
+    };
+    // ACN 3, 1, 2 are X, Y, Z.
+    [
+        entry(0, 0),
+        entry(3, 3),
+        entry(1, 1),
+        entry(2, 2),
+        entry(0, 3),
+        entry(0, 1),
+        entry(0, 2),
+    ]
 }
 
 fn grid_for(step_deg: f64) -> Result<EquirectGrid, EngineError> {

@@ -13,6 +13,18 @@ fn list(channels: &[usize]) -> String {
     names.join(", ")
 }
 
+/// The stream is order `order` but only orders up to `effective` carry energy.
+pub fn order_deficit(order: usize, effective: usize) -> Finding {
+    Finding {
+        severity: Severity::Warning,
+        code: FindingCode::OrderDeficit,
+        message: format!(
+            "the stream is order {order} but only orders up to {effective} carry energy"
+        ),
+        channels: Vec::new(),
+    }
+}
+
 /// Findings for the live state in `snapshot` (meters, format check).
 pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec<Finding> {
     let mut findings = Vec::new();
@@ -94,15 +106,7 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
         });
     }
     if check.ready && check.effective_order < snapshot.order {
-        findings.push(Finding {
-            severity: Severity::Warning,
-            code: FindingCode::OrderDeficit,
-            message: format!(
-                "the stream is order {} but only orders up to {} carry energy",
-                snapshot.order, check.effective_order
-            ),
-            channels: Vec::new(),
-        });
+        findings.push(order_deficit(snapshot.order, check.effective_order));
     }
     if let Some(detected) = check.detected
         && check.ready

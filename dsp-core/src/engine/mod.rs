@@ -3,6 +3,7 @@
 
 pub mod analyzer;
 pub mod control;
+mod diffuseness;
 pub mod findings;
 pub mod handoff;
 pub mod layout;

@@ -156,6 +156,10 @@ pub struct ChannelStatus {
 /// Gain staging of the omni channel W (after conversion to SN3D).
 #[derive(Clone, Copy, Debug, PartialEq, Default)]
 pub struct OmniReading {
+    /// SN3D-equivalent W level minus the stream's own W level, dB: 0 for AmbiX and ACN/N3D,
+    /// +3.01 dB for FuMa and ACN/maxN. The levels below are SN3D-equivalent; subtract this for
+    /// the stream's own W.
+    pub conversion_gain_db: f64,
     pub sample_peak_dbfs: f64,
     pub true_peak_dbtp: f64,
     pub max_true_peak_dbtp: f64,
@@ -297,10 +301,100 @@ pub struct Snapshot {
     pub health: EngineHealth,
     /// True while the map is frozen (hold).
     pub frozen: bool,
+    /// Whole-programme figures, refreshed with every format check (twice a second of audio)
+    /// and at [`Analyzer::finish`](super::Analyzer::finish).
+    pub programme: ProgrammeSummary,
 }
 
 impl Default for AmbiFormat {
     fn default() -> Self {
         AmbiFormat::ACN_SN3D
+    }
+}
+
+/// Whole-programme figures of one input channel, over everything analysed since the start
+/// (or since the last [`Analyzer::reset_programme`](super::Analyzer::reset_programme)).
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct ChannelProgramme {
+    /// Index of the channel in the input (file or host order, counted from 0).
+    pub input_index: usize,
+    /// ACN index it carries under the assumed format; `None` for an extra channel.
+    pub acn: Option<usize>,
+    pub order: Option<usize>,
+    pub degree: Option<i32>,
+    /// Highest sample peak, dBFS (the channel as stored).
+    pub sample_peak_dbfs: f64,
+    /// Highest true peak (BS.1770-4 Annex 2), dBTP (as stored).
+    pub true_peak_dbtp: f64,
+    /// RMS over the programme, dBFS (as stored).
+    pub rms_dbfs: f64,
+    /// RMS after conversion to SN3D, dBFS: what is compared with W.
+    pub sn3d_rms_dbfs: f64,
+    /// Samples at full scale, both signs (either extreme code in integer PCM, |x| ≥ 1 in float).
+    pub clip_count: u64,
+    /// Longest run of consecutive full-scale samples.
+    pub longest_clip_run: u64,
+    /// NaN or infinite samples.
+    pub invalid_samples: u64,
+    /// Mean of the valid samples over the programme (DC), linear full scale.
+    pub dc_offset: f64,
+    /// SN3D level above W's by more than the over-omni tolerance.
+    pub over_omni: bool,
+    /// Below −120 dBFS over the whole programme.
+    pub silent: bool,
+}
+
+/// W over the whole programme. Levels are SN3D-equivalent (what the analysis compares and
+/// what loudness is measured on); `file_w_offset_db` says how far the stream's own W differs.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct OmniProgramme {
+    /// SN3D-equivalent W level minus the stream's own W level, dB: 0 for AmbiX and ACN/N3D,
+    /// +3.01 dB for FuMa and ACN/maxN (their W carries −3.01 dB).
+    pub conversion_gain_db: f64,
+    pub sample_peak_dbfs: f64,
+    pub true_peak_dbtp: f64,
+    pub rms_dbfs: f64,
+    pub integrated_lufs: Option<f64>,
+    pub max_momentary_lufs: Option<f64>,
+    pub max_short_term_lufs: Option<f64>,
+}
+
+impl OmniProgramme {
+    /// A level in the stream's own W scale, from its SN3D-equivalent value.
+    pub fn as_stored(&self, sn3d_value: f64) -> f64 {
+        sn3d_value - self.conversion_gain_db
+    }
+}
+
+/// Whole-programme summary: what the scanner reports and the whole-session view shows.
+/// Computed in one place, [`Analyzer::programme_summary`](super::Analyzer::programme_summary).
+#[derive(Clone, Debug, PartialEq, Default)]
+pub struct ProgrammeSummary {
+    /// Audio analysed, seconds.
+    pub duration_s: f64,
+    /// Per input channel, indexed [input channel].
+    pub channels: Vec<ChannelProgramme>,
+    /// Full-band energy per order relative to W under the assumed format, dB, indexed [order].
+    pub order_balance_db: Vec<f64>,
+    /// Highest order that carries energy (full band).
+    pub effective_order: usize,
+    /// Per band ([`Band::index`]): the energy-weighted mean of short-time DirAC diffuseness.
+    pub diffuseness: [Option<f64>; 4],
+    pub omni: OmniProgramme,
+    /// The format check on the whole-programme full-band covariance.
+    pub format_check: FormatCheck,
+    /// Findings over the whole programme, most severe first.
+    pub findings: Vec<Finding>,
+}
+
+impl ChannelProgramme {
+    /// A non-spatial channel after the (N+1)² spatial ones.
+    pub fn is_extra(&self) -> bool {
+        self.acn.is_none()
+    }
+
+    /// True when a table should draw attention to the channel.
+    pub fn needs_attention(&self) -> bool {
+        self.clip_count > 0 || self.invalid_samples > 0 || self.over_omni || self.silent
     }
 }

@@ -103,6 +103,7 @@ pub struct Channel {
     pub rms_dbfs: Option<f64>,
     pub sn3d_rms_dbfs: Option<f64>,
     pub clipped_samples: u64,
+    pub longest_clip_run: u64,
     pub invalid_samples: u64,
     pub dc_offset: Option<f64>,
     pub over_omni: bool,
@@ -116,6 +117,7 @@ pub struct ExtraChannel {
     pub true_peak_dbtp: Option<f64>,
     pub rms_dbfs: Option<f64>,
     pub clipped_samples: u64,
+    pub longest_clip_run: u64,
     pub invalid_samples: u64,
     pub dc_offset: Option<f64>,
     pub silent: bool,
@@ -126,6 +128,17 @@ pub struct Omni {
     pub integrated_lufs: Option<f64>,
     pub max_momentary_lufs: Option<f64>,
     pub max_short_term_lufs: Option<f64>,
+    pub true_peak_dbtp: Option<f64>,
+    pub peak_dbfs: Option<f64>,
+    pub rms_dbfs: Option<f64>,
+    /// SN3D-equivalent W minus the file's own W, dB (0 for AmbiX and N3D, +3.01 for FuMa).
+    pub conversion_gain_db: Option<f64>,
+    /// The same W levels as stored in the file (before conversion).
+    pub stored: StoredW,
+}
+
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct StoredW {
     pub true_peak_dbtp: Option<f64>,
     pub peak_dbfs: Option<f64>,
     pub rms_dbfs: Option<f64>,
@@ -214,15 +227,16 @@ fn balance(values: &[f64]) -> Vec<Option<f64>> {
 
 fn spatial(c: &ChannelSummary) -> Option<Channel> {
     Some(Channel {
-        index: c.index,
+        index: c.input_index,
         acn: c.acn?,
         order: c.order?,
         degree: c.degree?,
-        peak_dbfs: rounded(level(c.peak_dbfs), 3),
+        peak_dbfs: rounded(level(c.sample_peak_dbfs), 3),
         true_peak_dbtp: rounded(level(c.true_peak_dbtp), 3),
         rms_dbfs: rounded(level(c.rms_dbfs), 3),
         sn3d_rms_dbfs: rounded(level(c.sn3d_rms_dbfs), 3),
-        clipped_samples: c.clipped_samples,
+        clipped_samples: c.clip_count,
+        longest_clip_run: c.longest_clip_run,
         invalid_samples: c.invalid_samples,
         dc_offset: rounded(num(c.dc_offset), 7),
         over_omni: c.over_omni,
@@ -232,11 +246,12 @@ fn spatial(c: &ChannelSummary) -> Option<Channel> {
 
 fn extra(c: &ChannelSummary) -> ExtraChannel {
     ExtraChannel {
-        index: c.index,
-        peak_dbfs: rounded(level(c.peak_dbfs), 3),
+        index: c.input_index,
+        peak_dbfs: rounded(level(c.sample_peak_dbfs), 3),
         true_peak_dbtp: rounded(level(c.true_peak_dbtp), 3),
         rms_dbfs: rounded(level(c.rms_dbfs), 3),
-        clipped_samples: c.clipped_samples,
+        clipped_samples: c.clip_count,
+        longest_clip_run: c.longest_clip_run,
         invalid_samples: c.invalid_samples,
         dc_offset: rounded(num(c.dc_offset), 7),
         silent: c.silent,
@@ -271,9 +286,8 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             .unwrap_or(0.0)
             .total_cmp(&a.probability.unwrap_or(0.0))
     });
-    let omni = &snap.omni;
-    let w = result.channels.iter().find(|c| c.acn == Some(0));
-    let w_gain_db = w.map_or(0.0, |w| w.sn3d_rms_dbfs - w.rms_dbfs);
+    let programme = &snap.programme;
+    let omni = &programme.omni;
     let full = result.band(fieldglass_dsp::engine::Band::Full);
     ScanDocument {
         schema: SCHEMA,
@@ -323,9 +337,15 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             integrated_lufs: rounded(omni.integrated_lufs.and_then(num), 2),
             max_momentary_lufs: rounded(omni.max_momentary_lufs.and_then(num), 2),
             max_short_term_lufs: rounded(omni.max_short_term_lufs.and_then(num), 2),
-            true_peak_dbtp: rounded(level(omni.max_true_peak_dbtp), 2),
-            peak_dbfs: rounded(w.and_then(|w| level(w.peak_dbfs)).map(|p| p + w_gain_db), 2),
-            rms_dbfs: rounded(w.and_then(|w| level(w.sn3d_rms_dbfs)), 2),
+            true_peak_dbtp: rounded(level(omni.true_peak_dbtp), 2),
+            peak_dbfs: rounded(level(omni.sample_peak_dbfs), 2),
+            rms_dbfs: rounded(level(omni.rms_dbfs), 2),
+            conversion_gain_db: rounded(num(omni.conversion_gain_db), 3),
+            stored: StoredW {
+                true_peak_dbtp: rounded(level(omni.as_stored(omni.true_peak_dbtp)), 2),
+                peak_dbfs: rounded(level(omni.as_stored(omni.sample_peak_dbfs)), 2),
+                rms_dbfs: rounded(level(omni.as_stored(omni.rms_dbfs)), 2),
+            },
         },
         sources: full
             .map(|b| b.sources.iter().map(source).collect())

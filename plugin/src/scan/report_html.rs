@@ -123,7 +123,7 @@ fn band_title(band: Band, range_hz: [f64; 2]) -> String {
 
 fn channel_flags(c: &ChannelSummary) -> String {
     let mut flags = Vec::new();
-    if c.clipped_samples > 0 {
+    if c.clip_count > 0 {
         flags.push("clipped");
     }
     if c.invalid_samples > 0 {
@@ -148,11 +148,11 @@ fn channel_row(out: &mut String, c: &ChannelSummary) {
     let _ = writeln!(
         out,
         "<tr{class}><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.5}</td><td class=\"left flag\">{}</td></tr>",
-        c.index + 1,
+        c.input_index + 1,
         opt(c.acn.map(|a| a.to_string())),
         opt(c.order.map(|a| a.to_string())),
         opt(c.degree.map(|a| a.to_string().replace('-', "−"))),
-        fmt_level(c.peak_dbfs, 1),
+        fmt_level(c.sample_peak_dbfs, 1),
         fmt_level(c.true_peak_dbtp, 1),
         fmt_level(c.rms_dbfs, 1),
         if c.is_extra() {
@@ -160,7 +160,7 @@ fn channel_row(out: &mut String, c: &ChannelSummary) {
         } else {
             fmt_level(c.sn3d_rms_dbfs, 1)
         },
-        c.clipped_samples,
+        c.clip_count,
         c.invalid_samples,
         c.dc_offset,
         channel_flags(c)
@@ -206,7 +206,7 @@ pub fn write_report(result: &ScanResult, dir: &Path) -> Result<PathBuf, CliError
 fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     let input = &result.input;
     let snap = &result.snapshot;
-    let omni = &snap.omni;
+    let omni = &snap.programme.omni;
     let mut h = String::with_capacity(1 << 20);
     let title = format!("Fieldglass scan — {}", input.display_name());
     let _ = write!(
@@ -280,8 +280,15 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     card(
         &mut h,
         "W true peak",
-        &format!("{} dBTP", fmt_level(omni.max_true_peak_dbtp, 1)),
-        "whole file, 4× oversampled",
+        &format!("{} dBTP", fmt_level(omni.true_peak_dbtp, 1)),
+        &if omni.conversion_gain_db.abs() > 0.005 {
+            format!(
+                "whole file, 4× oversampled, SN3D-equivalent; as stored {} dBTP",
+                fmt_level(omni.as_stored(omni.true_peak_dbtp), 1)
+            )
+        } else {
+            "whole file, 4× oversampled".to_string()
+        },
     );
     card(
         &mut h,

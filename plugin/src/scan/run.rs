@@ -7,13 +7,11 @@
 use super::CliError;
 use super::progress::Progress;
 use crate::wav::{Container, SampleFormat, WavReader};
-use fieldglass_dsp::engine::findings::collect_findings;
 use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
 };
-use fieldglass_dsp::format::{AmbiFormat, ConversionPlan, Normalization};
-use fieldglass_dsp::format_check::score_constants::EFFECTIVE_ORDER_FLOOR_DB;
+use fieldglass_dsp::format::{AmbiFormat, Normalization};
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
 use std::path::PathBuf;
@@ -30,10 +28,6 @@ pub const REPORT_GRID_STEP_DEG: f64 = 1.0;
 /// The timeline is halved (every second point dropped) when it reaches this many points, so a
 /// very long file keeps a bounded timeline (8192 points = 34 min at 4 Hz before thinning).
 pub const TIMELINE_MAX_POINTS: usize = 8192;
-/// Mean square below which a channel counts as silent over the whole file (−120 dBFS), the
-/// engine's threshold.
-pub const SILENT_MEAN_SQUARE: f64 = fieldglass_dsp::engine::analyzer::SILENT_MEAN_SQUARE;
-
 /// What to scan.
 #[derive(Clone, Debug, PartialEq)]
 pub enum ScanInput {
@@ -105,43 +99,8 @@ impl InputInfo {
     }
 }
 
-/// Whole-file figures of one input channel.
-#[derive(Clone, Debug, PartialEq)]
-pub struct ChannelSummary {
-    /// Index in the file (0-based).
-    pub index: usize,
-    /// ACN index it carries under the assumed format; `None` for an extra channel.
-    pub acn: Option<usize>,
-    pub order: Option<usize>,
-    pub degree: Option<i32>,
-    /// Highest sample peak over the file, dBFS (raw, as stored).
-    pub peak_dbfs: f64,
-    /// Highest true peak over the file, dBTP (raw).
-    pub true_peak_dbtp: f64,
-    /// RMS over the file, dBFS (raw).
-    pub rms_dbfs: f64,
-    /// RMS over the file after conversion to SN3D, dBFS (what is compared with W).
-    pub sn3d_rms_dbfs: f64,
-    pub clipped_samples: u64,
-    pub invalid_samples: u64,
-    /// Mean over the file, linear full scale.
-    pub dc_offset: f64,
-    /// Whole-file SN3D level above W's by more than the tolerance.
-    pub over_omni: bool,
-    /// Below −120 dBFS over the whole file.
-    pub silent: bool,
-}
-
-impl ChannelSummary {
-    pub fn is_extra(&self) -> bool {
-        self.acn.is_none()
-    }
-
-    /// True when the channel table should highlight the row.
-    pub fn needs_attention(&self) -> bool {
-        self.clipped_samples > 0 || self.invalid_samples > 0 || self.over_omni || self.silent
-    }
-}
+/// Whole-programme figures of one input channel (the engine's).
+pub type ChannelSummary = fieldglass_dsp::engine::ChannelProgramme;
 
 /// Whole-programme picture of one band.
 #[derive(Clone, Debug, PartialEq)]
@@ -379,42 +338,13 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
         )));
     }
 
-    let mut snapshot = analyzer.finish().clone();
-    let conversion = ConversionPlan::to_sn3d(options.assumed, layout.order)
-        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
-    let mean_square = analyzer.programme_mean_square();
-    let mean = analyzer.programme_mean();
-    let channels = channel_summaries(
-        &snapshot,
-        &conversion,
-        &layout,
-        &mean_square,
-        &mean,
-        options.over_omni_tolerance_db,
-    );
-    let own_balance = order_balance_from_levels(&conversion, layout.order, &mean_square);
-    let check = &snapshot.format_check;
-    let order_balance_db = if check.order_balance_db.len() == layout.order + 1 {
-        check.order_balance_db.clone()
-    } else {
-        own_balance.clone()
-    };
-    let effective_order = if check.ready {
-        check.effective_order
-    } else {
-        (0..=layout.order)
-            .rev()
-            .find(|&n| own_balance[n] > EFFECTIVE_ORDER_FLOOR_DB)
-            .unwrap_or(0)
-    };
-
-    // Whole-file findings: the engine's rules applied to whole-file channel figures.
-    patch_whole_file_status(&mut snapshot, &channels);
-    let mut findings = collect_findings(&snapshot, analyzer.settings());
-    if !check_ready_for_order(&snapshot) && effective_order < layout.order {
-        findings.push(order_deficit(layout.order, effective_order));
-    }
-    findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
+    // Every whole-programme figure comes from the engine's programme summary.
+    let snapshot = analyzer.finish().clone();
+    let programme = &snapshot.programme;
+    let channels = programme.channels.clone();
+    let order_balance_db = programme.order_balance_db.clone();
+    let effective_order = programme.effective_order;
+    let findings = programme.findings.clone();
 
     // Whole-programme maps per band on a finer grid.
     let report_settings = AnalysisSettings {
@@ -467,113 +397,12 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     })
 }
 
-fn check_ready_for_order(snapshot: &Snapshot) -> bool {
-    snapshot.format_check.ready
-}
-
-fn order_deficit(order: usize, effective: usize) -> Finding {
-    Finding {
-        severity: fieldglass_dsp::engine::Severity::Warning,
-        code: fieldglass_dsp::engine::FindingCode::OrderDeficit,
-        message: format!(
-            "the stream is order {order} but only orders up to {effective} carry energy"
-        ),
-        channels: Vec::new(),
-    }
-}
-
 fn timeline_point(snapshot: &Snapshot) -> TimelinePoint {
     TimelinePoint {
         time_s: snapshot.time_s,
         direction: snapshot.sources.first().map(|s| s.direction),
         w_rms_dbfs: snapshot.omni.rms_dbfs,
     }
-}
-
-fn level_db(mean_square: f64) -> f64 {
-    if mean_square > 0.0 {
-        10.0 * mean_square.log10()
-    } else {
-        f64::NEG_INFINITY
-    }
-}
-
-fn channel_summaries(
-    snapshot: &Snapshot,
-    conversion: &ConversionPlan,
-    layout: &ChannelLayout,
-    mean_square: &[f64],
-    mean: &[f64],
-    tolerance_db: f64,
-) -> Vec<ChannelSummary> {
-    let m = layout.spatial_channels;
-    let mut acn_of_input = vec![None; layout.channels()];
-    for acn in 0..m {
-        acn_of_input[conversion.source_channel(acn)] = Some(acn);
-    }
-    let sn3d_mean_square = |c: usize| -> f64 {
-        match acn_of_input[c] {
-            Some(acn) => mean_square[c] * conversion.gain(acn).powi(2),
-            None => mean_square[c],
-        }
-    };
-    let w_input = conversion.source_channel(0);
-    let w_sn3d = sn3d_mean_square(w_input);
-    let w_active = w_sn3d > SILENT_MEAN_SQUARE;
-    (0..layout.channels())
-        .map(|c| {
-            let reading = snapshot
-                .channel_status
-                .get(c)
-                .map(|s| s.reading)
-                .unwrap_or_default();
-            let acn = acn_of_input[c];
-            let sn3d = sn3d_mean_square(c);
-            let over_omni = acn.is_some_and(|a| a != 0)
-                && w_active
-                && level_db(sn3d) > level_db(w_sn3d) + tolerance_db;
-            ChannelSummary {
-                index: c,
-                acn,
-                order: acn.map(|a| fieldglass_dsp::sh::order_degree(a).0),
-                degree: acn.map(|a| fieldglass_dsp::sh::order_degree(a).1),
-                peak_dbfs: reading.max_sample_peak_dbfs,
-                true_peak_dbtp: reading.max_true_peak_dbtp,
-                rms_dbfs: level_db(mean_square[c]),
-                sn3d_rms_dbfs: level_db(sn3d),
-                clipped_samples: reading.clip_count,
-                invalid_samples: reading.invalid_sample_count,
-                dc_offset: mean[c],
-                over_omni,
-                silent: mean_square[c] < SILENT_MEAN_SQUARE,
-            }
-        })
-        .collect()
-}
-
-/// Per-order energy relative to W from whole-file channel levels under the assumed format:
-/// E_n = Σ_m ms_sn3d(n, m) / ms_sn3d(W), dB.
-pub fn order_balance_from_levels(
-    conversion: &ConversionPlan,
-    order: usize,
-    mean_square: &[f64],
-) -> Vec<f64> {
-    let sn3d =
-        |acn: usize| mean_square[conversion.source_channel(acn)] * conversion.gain(acn).powi(2);
-    let w = sn3d(0);
-    (0..=order)
-        .map(|n| {
-            if n == 0 {
-                return 0.0;
-            }
-            let energy: f64 = (n * n..(n + 1) * (n + 1)).map(sn3d).sum();
-            if w > 0.0 && energy > 0.0 {
-                10.0 * (energy / w).log10()
-            } else {
-                -300.0
-            }
-        })
-        .collect()
 }
 
 /// Expected order balance (dB, indexed [order]) of an isotropic incoherent field stored in
@@ -601,26 +430,4 @@ pub fn expected_balance_db(
             Some(10.0 * (energy / (2 * n + 1) as f64 / (w * w)).log10())
         })
         .collect()
-}
-
-/// Puts whole-file figures into the snapshot's channel status so that the engine's finding
-/// rules judge the whole file rather than its last window.
-fn patch_whole_file_status(snapshot: &mut Snapshot, channels: &[ChannelSummary]) {
-    for (status, summary) in snapshot.channel_status.iter_mut().zip(channels) {
-        status.over_omni = summary.over_omni;
-        status.reading.over_omni = summary.over_omni;
-        status.silent = summary.silent;
-        status.reading.dc_offset = summary.dc_offset;
-    }
-    let w_silent = channels
-        .iter()
-        .find(|c| c.acn == Some(0))
-        .is_none_or(|w| w.silent);
-    if !w_silent {
-        snapshot.format_check.silent_channels = channels
-            .iter()
-            .filter(|c| c.silent && !c.is_extra())
-            .map(|c| c.index)
-            .collect();
-    }
 }

@@ -61,15 +61,24 @@ pub fn summary(result: &ScanResult, report: Option<&str>) -> String {
         );
     }
     let _ = writeln!(out, "  format:   {}", format_verdict(result));
-    let omni = &result.snapshot.omni;
+    let omni = &result.snapshot.programme.omni;
     let _ = writeln!(
         out,
         "  omni (W): integrated {}, max momentary {}, max short-term {}, true peak {}",
         db(omni.integrated_lufs, "LUFS"),
         db(omni.max_momentary_lufs, "LUFS"),
         db(omni.max_short_term_lufs, "LUFS"),
-        db(Some(omni.max_true_peak_dbtp), "dBTP")
+        db(Some(omni.true_peak_dbtp), "dBTP")
     );
+    if omni.conversion_gain_db.abs() > 0.005 {
+        let _ = writeln!(
+            out,
+            "            (W converted to SN3D, {:+.2} dB; as stored: true peak {}, RMS {})",
+            omni.conversion_gain_db,
+            db(Some(omni.as_stored(omni.true_peak_dbtp)), "dBTP"),
+            db(Some(omni.as_stored(omni.rms_dbfs)), "dBFS")
+        );
+    }
     if let Some(full) = result.band(Band::Full) {
         let _ = writeln!(
             out,
