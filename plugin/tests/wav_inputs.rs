@@ -28,8 +28,8 @@ fn guid_bytes(text: &str) -> [u8; 16] {
     for (slot, source) in [3, 2, 1, 0, 5, 4, 7, 6].into_iter().enumerate() {
         out[slot] = byte(source);
     }
-    for i in 8..16 {
-        out[i] = byte(i);
+    for (i, slot) in out.iter_mut().enumerate().skip(8) {
+        *slot = byte(i);
     }
     out
 }
