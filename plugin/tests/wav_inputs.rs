@@ -14,6 +14,9 @@
 //!   and 32-bit RIFF sizes wrapping past 4 GiB: common practice, no standard describes them.
 
 use fieldglass::wav::{SampleFormat, WavReader, WavSpec, WavWriter, WriterOptions};
+use fieldglass_dsp::encoder::PlaneWaveEncoder;
+use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander};
+use fieldglass_dsp::sphere::Direction;
 use std::fs::OpenOptions;
 use std::io::{Cursor, Seek, SeekFrom, Write};
 
@@ -259,6 +262,57 @@ fn b_format_writer_writes_the_published_guid_and_reads_back() {
     writer.finalize().unwrap();
     let reader = WavReader::open(&path).unwrap();
     assert!(reader.declares_b_format() && reader.frames() == 1);
+}
+
+#[test]
+fn five_channel_amb_file_expands_to_second_order_fuma() {
+    // A horizontal source at azimuth 30°, elevation 0, encoded in full second-order FuMa by the
+    // project's encoder; the file keeps W X Y U V (the 5-channel horizontal set of the AMB
+    // channel table, see fieldglass_dsp::format::mixed_order).
+    let frames = 64;
+    let mut encoder = PlaneWaveEncoder::new(2, AmbiFormat::FUMA).unwrap();
+    let mut full = vec![vec![0.0f32; frames]; 9];
+    let signal: Vec<f32> = (0..frames)
+        .map(|i| ((i * 7 % 13) as f32 - 6.0) / 10.0)
+        .collect();
+    let mut refs: Vec<&mut [f32]> = full.iter_mut().map(|c| c.as_mut_slice()).collect();
+    encoder.add_to(Direction::new(30.0, 0.0), 1.0, &signal, &mut refs);
+    let kept = [0, 1, 2, 7, 8];
+    let planes: Vec<&[f32]> = kept.iter().map(|&c| full[c].as_slice()).collect();
+
+    let mut cursor = Cursor::new(Vec::new());
+    let mut writer = WavWriter::new_b_format(
+        &mut cursor,
+        spec(5, 24, SampleFormat::Int),
+        Default::default(),
+    )
+    .unwrap();
+    writer.write_planar(&planes).unwrap();
+    writer.finalize().unwrap();
+
+    let mut reader = WavReader::new(Cursor::new(cursor.into_inner())).unwrap();
+    assert!(reader.declares_b_format());
+    let mut file = vec![Vec::new(); 5];
+    assert_eq!(reader.read_planar(&mut file, frames).unwrap(), frames);
+    let expander = MixedOrderExpander::for_stream(AmbiFormat::FUMA, 5).unwrap();
+    assert_eq!(expander.order(), 2);
+    let mut expanded = vec![vec![f32::NAN; frames]; 9];
+    let input: Vec<&[f32]> = file.iter().map(|c| c.as_slice()).collect();
+    let mut output: Vec<&mut [f32]> = expanded.iter_mut().map(|c| c.as_mut_slice()).collect();
+    expander.expand(&input, &mut output).unwrap();
+    // Half a 24-bit step of rounding.
+    let tolerance = 0.5 / 8_388_608.0 + 1e-9;
+    for (channel, (got, encoded)) in expanded.iter().zip(&full).enumerate() {
+        let absent = expander.absent_channels().contains(&channel);
+        for (&g, &e) in got.iter().zip(encoded) {
+            if absent {
+                assert_eq!(g, 0.0, "channel {channel}");
+            } else {
+                assert!((g - e).abs() <= tolerance, "channel {channel}: {g} vs {e}");
+            }
+        }
+    }
+    assert_eq!(expander.absent_channels(), &[3, 4, 5, 6]); // Z R S T
 }
 
 // ---------- unfinalised files ----------

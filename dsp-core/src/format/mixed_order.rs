@@ -30,8 +30,8 @@
 //! ((N+1)² channels, FuMa letter order) with zeros in the absent components, so the ordinary
 //! FuMa → ACN/SN3D conversion applies unchanged. It owns fixed-size tables and never allocates.
 
-use super::FormatError;
-use super::fuma::{FUMA_LETTERS, MAX_FUMA_ORDER};
+use super::fuma::{FUMA_LETTERS, FUMA_TO_ACN, MAX_FUMA_ORDER};
+use super::{AmbiFormat, ChannelOrdering, FormatError};
 use crate::sh::channel_count;
 
 /// Channels of a full third-order FuMa stream (the most any set expands to).
@@ -142,6 +142,17 @@ impl MixedOrderExpander {
         FumaChannelSet::for_channel_count(channels).map(Self::new)
     }
 
+    /// The expander an input needs: `Some` only when the stream is assumed to be in FuMa
+    /// channel order and `channels` is one of the horizontal or mixed-order sets (3, 5, 6, 7,
+    /// 8, 11). Full sets (4, 9, 16) need no expansion, and in ACN order these counts keep
+    /// their usual meaning (a full order plus non-spatial channels), so both give `None`.
+    pub fn for_stream(assumed: AmbiFormat, channels: usize) -> Option<Self> {
+        if assumed.ordering != ChannelOrdering::Fuma {
+            return None;
+        }
+        Self::for_channel_count(channels).filter(|expander| !expander.set.is_full())
+    }
+
     /// Expander for `set`.
     pub fn new(set: &'static FumaChannelSet) -> Self {
         let mut source = [None; MAX_EXPANDED_CHANNELS];
@@ -188,6 +199,12 @@ impl MixedOrderExpander {
     /// ascending. Their expanded signals are zero; they are absent, not silent.
     pub fn absent_channels(&self) -> &[usize] {
         &self.absent[..self.absent_count]
+    }
+
+    /// The absent channels as ACN indices (what they become after conversion to ACN/SN3D),
+    /// in expanded FuMa order. Allocation-free.
+    pub fn absent_acn_channels(&self) -> impl Iterator<Item = usize> + '_ {
+        self.absent_channels().iter().map(|&fuma| FUMA_TO_ACN[fuma])
     }
 
     /// The file channel feeding expanded channel `expanded`, or `None` when it is absent (or
@@ -279,10 +296,34 @@ mod tests {
     }
 
     #[test]
+    fn only_fuma_order_with_a_partial_set_is_expanded() {
+        for channels in [3, 5, 6, 7, 8, 11] {
+            let expander = MixedOrderExpander::for_stream(AmbiFormat::FUMA, channels).unwrap();
+            assert_eq!(expander.input_channels(), channels);
+        }
+        for channels in [4, 9, 16, 10, 18, 25] {
+            assert!(MixedOrderExpander::for_stream(AmbiFormat::FUMA, channels).is_none());
+        }
+        // ACN streams of 5 or 6 channels stay first order plus extra channels.
+        for format in [
+            AmbiFormat::ACN_SN3D,
+            AmbiFormat::ACN_N3D,
+            AmbiFormat::ACN_MAXN,
+        ] {
+            for channels in [3, 5, 6, 7, 8, 11] {
+                assert!(MixedOrderExpander::for_stream(format, channels).is_none());
+            }
+        }
+        // Absent W X Y U V → Z R S T, i.e. ACN 2, 6, 7, 5 (FuMa letter ↔ ACN pairing of the
+        // ambiX paper, Nachbar et al. 2011: Z2 R6 S7 T5).
+        let hh = MixedOrderExpander::for_stream(AmbiFormat::FUMA, 5).unwrap();
+        assert_eq!(hh.absent_acn_channels().collect::<Vec<_>>(), [2, 6, 7, 5]);
+    }
+
+    #[test]
     fn components_follow_the_order_rule() {
         // Consistency with the SH degrees: a set carries every component of order ≤ its height
         // order and only the |m| = n (horizontal) ones above it, in ascending FuMa order.
-        use crate::format::fuma::FUMA_TO_ACN;
         use crate::sh::order_degree;
         for set in &FUMA_CHANNEL_SETS {
             let wanted: Vec<usize> = (0..set.expanded_channels())
