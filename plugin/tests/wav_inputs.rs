@@ -502,6 +502,20 @@ fn placeholder_size_over_4_gib_reads_to_the_end() {
 }
 
 #[test]
+fn data_size_wrapped_to_exactly_zero_reads_everything() {
+    let dir = tempfile::tempdir().unwrap();
+    let data_bytes = FOUR_GIB; // the 32-bit data size field holds 0
+    let (path, _) = sparse_wrapped_file(&dir, data_bytes, &[]);
+    let reader = WavReader::open(&path).unwrap();
+    assert_eq!(reader.frames(), data_bytes / 4);
+    let text = reader.warnings().join(" | ");
+    assert!(
+        text.contains("declares 0 bytes") && text.contains("wrapped"),
+        "{text}"
+    );
+}
+
+#[test]
 fn a_file_shorter_than_a_wrap_is_not_mistaken_for_one() {
     // 200 frames declared, 100 KiB of other bytes after the data: far from 4 GiB, so the
     // declared size stands and nothing is said.

@@ -745,10 +745,14 @@ fn recovered_data_bytes<R: Read + Seek>(
         let riff_covers_more =
             riff_bytes != placeholder && riff_bytes.saturating_add(8) > data_start;
         if !(riff_covers_more && source.chunk_header_plausible_at(data_start)?) {
-            let (bytes, text) = read_to_end(
+            let why = if container == Container::Riff && available >= FOUR_GIB {
                 "the data chunk declares 0 bytes but sample data follows: the recorder did not \
-                 finalise the file",
-            );
+                 finalise the file, or its 32-bit size wrapped around at a multiple of 4 GiB"
+            } else {
+                "the data chunk declares 0 bytes but sample data follows: the recorder did not \
+                 finalise the file"
+            };
+            let (bytes, text) = read_to_end(why);
             warnings.push(text);
             return Ok(bytes);
         }
