@@ -131,6 +131,10 @@ fn expanded_horizontal_set_is_found_on_the_horizon() {
     let snapshot = analyzer.snapshot();
     assert_eq!(snapshot.order, 2);
     let top = snapshot.sources.first().expect("a source").direction;
+    println!(
+        "expanded W X Y U V: strongest source at azimuth {:.2}°, elevation {:.2}°",
+        top.azimuth_deg, top.elevation_deg
+    );
     assert!(
         top.elevation_deg.abs() < 1.5 && (top.azimuth_deg - 30.0).abs() < 1.5,
         "expanded: found {top:?}"
@@ -145,5 +149,9 @@ fn expanded_horizontal_set_is_found_on_the_horizon() {
     let doa = misread.snapshot().intensity[Band::Full.index()]
         .direction
         .unwrap();
+    println!(
+        "read as first order plus one extra channel: DirAC elevation {:.1}°",
+        doa.elevation_deg
+    );
     assert!(doa.elevation_deg > 20.0, "misread DirAC {doa:?}");
 }
