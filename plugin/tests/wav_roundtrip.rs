@@ -761,7 +761,7 @@ fn impossible_fmt_values_are_named() {
     assert_eq!(
         open_err(with_fmt(unknown_guid)).to_string(),
         "unsupported sample format: WAVE_FORMAT_EXTENSIBLE subformat \
-         00000002-0000-0010-8000-00AA00389B71 (only PCM and IEEE float are read)"
+         00000002-0000-0010-8000-00AA00389B71 (only PCM and IEEE float, plain or AMB B-format, are read)"
     );
 }
 

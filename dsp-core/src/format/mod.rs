@@ -3,15 +3,19 @@
 //!
 //! - [`AmbiFormat`] names a format (ordering + normalisation) and parses/prints its label.
 //! - [`fuma`] holds the Furse–Malham channel order and the maxN weights (orders 0..=3).
+//! - [`mixed_order`] holds the FuMa horizontal and mixed-order channel sets (3 to 16 channels)
+//!   and [`MixedOrderExpander`], which fills in their absent components with zeros.
 //! - [`ConversionPlan`] is a precomputed channel map plus gains; applying it is one multiply per
 //!   channel with no branching on the format, and never allocates.
 
 mod conversion;
 mod error;
 pub mod fuma;
+pub mod mixed_order;
 
 pub use conversion::{ConversionDirection, ConversionPlan};
 pub use error::FormatError;
+pub use mixed_order::{FUMA_CHANNEL_SETS, FumaChannelSet, MixedOrderExpander};
 
 use crate::sh::{MAX_SH_ORDER, n3d_gain, order_degree};
 use std::fmt;

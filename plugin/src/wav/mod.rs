@@ -1,7 +1,11 @@
 //! Streaming WAV reader and writer for `fieldglass scan` and `fieldglass demo`.
 //!
-//! Handles RIFF/WAVE (Microsoft RIFF layout), WAVE_FORMAT_EXTENSIBLE, and the long-form RF64
+//! Handles RIFF/WAVE (Microsoft RIFF layout), WAVE_FORMAT_EXTENSIBLE (including the AMB
+//! B-format sub-format, the `.amb` convention for FuMa files), and the long-form RF64
 //! (EBU Tech 3306) and BW64 (ITU-R BS.2088-1) headers whose `ds64` chunk carries 64-bit sizes.
+//! Files a recorder never finalised (data size 0 or 0xFFFFFFFF) and RIFF files over 4 GiB whose
+//! 32-bit sizes wrapped are read to the end of their sample data, with a warning
+//! ([`WavReader::warnings`]).
 //! Both sides stream in constant memory: the reader decodes through a fixed scratch buffer into
 //! caller-owned `f32` buffers; the writer encodes through a fixed scratch buffer and patches the
 //! sizes on [`WavWriter::finalize`]. No size read from a file ever drives an allocation.
@@ -98,4 +102,15 @@ const SUBTYPE_PCM: [u8; 16] = [
 /// From the Microsoft WAVEFORMATEXTENSIBLE docs, from memory.
 const SUBTYPE_IEEE_FLOAT: [u8; 16] = [
     0x03, 0x00, 0x00, 0x00, 0x00, 0x00, 0x10, 0x00, 0x80, 0x00, 0x00, 0xAA, 0x00, 0x38, 0x9B, 0x71,
+];
+/// SUBTYPE_AMBISONIC_B_FORMAT_PCM, 00000001-0721-11D3-8644-C8C1CA000000, in file byte order.
+/// Published in R. Dobson, "WAVE-FORMAT-EXTENSIBLE and B-format audio"
+/// (dream.cs.bath.ac.uk/researchdev/wave-ex/bformat.html), the definition of the `.amb` format.
+const SUBTYPE_AMB_B_FORMAT_PCM: [u8; 16] = [
+    0x01, 0x00, 0x00, 0x00, 0x21, 0x07, 0xD3, 0x11, 0x86, 0x44, 0xC8, 0xC1, 0xCA, 0x00, 0x00, 0x00,
+];
+/// SUBTYPE_AMBISONIC_B_FORMAT_IEEE_FLOAT, 00000003-0721-11D3-8644-C8C1CA000000, in file byte
+/// order (same source as [`SUBTYPE_AMB_B_FORMAT_PCM`]).
+const SUBTYPE_AMB_B_FORMAT_IEEE_FLOAT: [u8; 16] = [
+    0x03, 0x00, 0x00, 0x00, 0x21, 0x07, 0xD3, 0x11, 0x86, 0x44, 0xC8, 0xC1, 0xCA, 0x00, 0x00, 0x00,
 ];

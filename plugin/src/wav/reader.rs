@@ -6,11 +6,18 @@
 //! In RF64/BW64 the first chunk is `ds64` with 64-bit riff size, data size and sample count
 //! (each a low/high DWORD pair) and a table of 64-bit sizes for other chunks; a 32-bit size of
 //! 0xFFFFFFFF then means "look it up in ds64".
+//!
+//! Sizes a recorder left unfinished are recovered from the file length (see
+//! [`WavReader::warnings`]): a data size of 0 followed by sample bytes, or of 0xFFFFFFFF in a
+//! plain RIFF, reads to the end of the file; a plain RIFF over 4 GiB, whose 32-bit sizes can
+//! only hold the true sizes modulo 2^32, reads the whole multiple of 4 GiB the file holds.
 
+use super::error::human_bytes;
 use super::error::{WavError, show_id};
 use super::{
     FORMAT_EXTENSIBLE, FORMAT_IEEE_FLOAT, FORMAT_PCM, SCRATCH_BYTES, SIZE_PLACEHOLDER,
-    SUBTYPE_IEEE_FLOAT, SUBTYPE_PCM, SampleFormat, WavSpec,
+    SUBTYPE_AMB_B_FORMAT_IEEE_FLOAT, SUBTYPE_AMB_B_FORMAT_PCM, SUBTYPE_IEEE_FLOAT, SUBTYPE_PCM,
+    SampleFormat, WavSpec,
 };
 use std::fs::File;
 use std::io::{BufReader, ErrorKind, Read, Seek, SeekFrom};
@@ -33,8 +40,22 @@ const MAX_DS64_TABLE_ENTRIES: usize = 64;
 /// The 64-bit sizes of a ds64 chunk.
 #[derive(Default)]
 struct Ds64 {
+    riff_bytes: u64,
     data_bytes: u64,
     table: Vec<([u8; 4], u64)>,
+}
+
+/// 2^32: the sizes a 32-bit RIFF size field wraps around at.
+const FOUR_GIB: u64 = 1 << 32;
+
+/// What a fmt chunk says.
+#[derive(Clone, Copy)]
+struct Fmt {
+    spec: WavSpec,
+    decoding: Decoding,
+    block_align: usize,
+    /// The extensible SubFormat is one of the AMB B-format GUIDs.
+    b_format: bool,
 }
 
 /// How one stored sample becomes an `f32`.
@@ -60,6 +81,8 @@ pub struct WavReader<R> {
     data_start: u64,
     frames: u64,
     frames_read: u64,
+    b_format: bool,
+    warnings: Vec<String>,
     scratch: Vec<u8>,
 }
 
@@ -86,18 +109,21 @@ impl<R: Read + Seek> WavReader<R> {
             inner: &mut inner,
             file_bytes,
         };
-        let container = source.read_riff_header()?;
+        let (container, riff_size32) = source.read_riff_header()?;
         let mut pos = 12u64;
         let ds64 = if container == Container::Riff {
-            Ds64::default()
+            Ds64 {
+                riff_bytes: u64::from(riff_size32),
+                ..Ds64::default()
+            }
         } else {
             let (ds64, next) = source.read_ds64(pos)?;
             pos = next;
             ds64
         };
 
-        let mut fmt: Option<(WavSpec, Decoding, usize)> = None;
-        let ((spec, decoding, block_align), data_start, data_bytes) = loop {
+        let mut fmt: Option<Fmt> = None;
+        let (fmt, data_start, declared_data_bytes) = loop {
             if pos >= file_bytes {
                 return Err(WavError::MissingData {
                     fmt_seen: fmt.is_some(),
@@ -146,8 +172,26 @@ impl<R: Read + Seek> WavReader<R> {
             pos = body_start.saturating_add(size).saturating_add(size & 1);
         };
 
+        let Fmt {
+            spec,
+            decoding,
+            block_align,
+            b_format,
+        } = fmt;
         let available_bytes = file_bytes - data_start;
         let block = block_align as u64;
+        let mut warnings = Vec::new();
+        let data_bytes = recovered_data_bytes(
+            &mut source,
+            &DataLayout {
+                container,
+                riff_bytes: ds64.riff_bytes,
+                declared_bytes: declared_data_bytes,
+                data_start,
+                block,
+            },
+            &mut warnings,
+        )?;
         if data_bytes > available_bytes {
             return Err(WavError::DataTruncated {
                 data_start,
@@ -170,8 +214,24 @@ impl<R: Read + Seek> WavReader<R> {
             data_start,
             frames: data_bytes / block,
             frames_read: 0,
+            b_format,
+            warnings,
             scratch: vec![0; scratch_frames * block_align],
         })
+    }
+
+    /// Whether the fmt chunk's SubFormat is an AMB B-format GUID (the `.amb` convention). Such
+    /// files carry FuMa channels (order W X Y Z R S T U V K L M N O P Q, maxN weights), so this
+    /// is a strong hint that the stream is FuMa; it does not by itself change any format choice.
+    pub fn declares_b_format(&self) -> bool {
+        self.b_format
+    }
+
+    /// Things about the file a user should know although it could be read, in plain words:
+    /// e.g. a data size a recorder never finalised, recovered from the file length. Empty for
+    /// an ordinary, finalised file.
+    pub fn warnings(&self) -> &[String] {
+        &self.warnings
     }
 
     /// The sample layout.
@@ -395,7 +455,8 @@ impl<R: Read + Seek> Source<'_, R> {
         }
     }
 
-    fn read_riff_header(&mut self) -> Result<Container, WavError> {
+    /// Reads the 12-byte header; returns the container and its 32-bit RIFF size field.
+    fn read_riff_header(&mut self) -> Result<(Container, u32), WavError> {
         let mut head = [0u8; 12];
         let got = self.read_at(0, &mut head, "the RIFF header")?;
         let id = &head[..got.min(4)];
@@ -429,7 +490,10 @@ impl<R: Read + Seek> Source<'_, R> {
         if got < 12 {
             return Err(self.truncated("the RIFF header"));
         }
-        Ok(container)
+        Ok((
+            container,
+            u32::from_le_bytes([head[4], head[5], head[6], head[7]]),
+        ))
     }
 
     /// Reads the 8-byte chunk header at `pos`.
@@ -481,6 +545,7 @@ impl<R: Read + Seek> Source<'_, R> {
             u64::from_le_bytes(b)
         };
         // Layout: riffSize (0), dataSize (8), sampleCount (16), tableLength (24).
+        let riff_bytes = u64_at(0);
         let data_bytes = u64_at(8);
         let table_length = u32::from_le_bytes([fixed[24], fixed[25], fixed[26], fixed[27]]);
         let entries = (table_length as usize)
@@ -497,11 +562,18 @@ impl<R: Read + Seek> Source<'_, R> {
             table.push((id, u64::from_le_bytes(b)));
         }
         let next = body_start + size + (size & 1);
-        Ok((Ds64 { data_bytes, table }, next))
+        Ok((
+            Ds64 {
+                riff_bytes,
+                data_bytes,
+                table,
+            },
+            next,
+        ))
     }
 
     /// Parses a fmt chunk body of `size` bytes at `pos`.
-    fn read_fmt(&mut self, pos: u64, size: u64) -> Result<(WavSpec, Decoding, usize), WavError> {
+    fn read_fmt(&mut self, pos: u64, size: u64) -> Result<Fmt, WavError> {
         if pos.saturating_add(size) > self.file_bytes {
             return Err(self.truncated(&format!(
                 "the fmt chunk (declared {size} bytes from byte {pos})"
@@ -525,9 +597,9 @@ impl<R: Read + Seek> Source<'_, R> {
         let declared_block_align = u16_at(12);
         let bits_per_sample = u16_at(14);
 
-        let (sample_format, channel_mask) = match format_tag {
-            FORMAT_PCM => (SampleFormat::Int, None),
-            FORMAT_IEEE_FLOAT => (SampleFormat::Float, None),
+        let (sample_format, channel_mask, b_format) = match format_tag {
+            FORMAT_PCM => (SampleFormat::Int, None, false),
+            FORMAT_IEEE_FLOAT => (SampleFormat::Float, None, false),
             FORMAT_EXTENSIBLE => {
                 if size < 40 {
                     return Err(WavError::InvalidFormat(format!(
@@ -541,17 +613,22 @@ impl<R: Read + Seek> Source<'_, R> {
                     )));
                 }
                 let subformat = &body[24..40];
-                let sample_format = if subformat == SUBTYPE_PCM {
-                    SampleFormat::Int
+                let (sample_format, b_format) = if subformat == SUBTYPE_PCM {
+                    (SampleFormat::Int, false)
                 } else if subformat == SUBTYPE_IEEE_FLOAT {
-                    SampleFormat::Float
+                    (SampleFormat::Float, false)
+                } else if subformat == SUBTYPE_AMB_B_FORMAT_PCM {
+                    (SampleFormat::Int, true)
+                } else if subformat == SUBTYPE_AMB_B_FORMAT_IEEE_FLOAT {
+                    (SampleFormat::Float, true)
                 } else {
                     return Err(WavError::Unsupported(format!(
-                        "WAVE_FORMAT_EXTENSIBLE subformat {} (only PCM and IEEE float are read)",
+                        "WAVE_FORMAT_EXTENSIBLE subformat {} (only PCM and IEEE float, plain or \
+                         AMB B-format, are read)",
                         show_guid(subformat)
                     )));
                 };
-                (sample_format, Some(u32_at(20)))
+                (sample_format, Some(u32_at(20)), b_format)
             }
             other => {
                 return Err(WavError::Unsupported(format!(
@@ -583,8 +660,119 @@ impl<R: Read + Seek> Source<'_, R> {
             (SampleFormat::Float, 32) => Decoding::F32,
             (SampleFormat::Float, _) => Decoding::F64,
         };
-        Ok((spec, decoding, block_align))
+        Ok(Fmt {
+            spec,
+            decoding,
+            block_align,
+            b_format,
+        })
     }
+
+    /// Whether the 8 bytes at `pos` look like a chunk header that fits in the file: an
+    /// identifier of four ASCII letters, digits or spaces, and a body that ends by the end of
+    /// the file. Sample data almost never looks like that.
+    fn chunk_header_plausible_at(&mut self, pos: u64) -> Result<bool, WavError> {
+        let mut header = [0u8; 8];
+        if self.read_at(pos, &mut header, "the bytes after the data chunk header")? < 8 {
+            return Ok(false);
+        }
+        let id_ok = header[..4]
+            .iter()
+            .all(|b| b.is_ascii_alphanumeric() || *b == b' ');
+        let size = u64::from(u32::from_le_bytes([
+            header[4], header[5], header[6], header[7],
+        ]));
+        Ok(id_ok && pos + 8 + size <= self.file_bytes)
+    }
+}
+
+/// Where the data chunk sits and what the header says about its size.
+struct DataLayout {
+    container: Container,
+    /// RIFF size from the header (plain RIFF) or from ds64.
+    riff_bytes: u64,
+    /// Data size from the data chunk header (or ds64).
+    declared_bytes: u64,
+    data_start: u64,
+    /// Bytes per frame.
+    block: u64,
+}
+
+/// The data size to read: the declared one for a finalised file, or the one recovered from the
+/// file length for an unfinalised or wrapped one (with a warning pushed to `warnings`).
+fn recovered_data_bytes<R: Read + Seek>(
+    source: &mut Source<'_, R>,
+    layout: &DataLayout,
+    warnings: &mut Vec<String>,
+) -> Result<u64, WavError> {
+    let DataLayout {
+        container,
+        riff_bytes,
+        declared_bytes,
+        data_start,
+        block,
+    } = *layout;
+    let available = source.file_bytes - data_start;
+    let whole_frames = |bytes: u64| bytes / block * block;
+    let read_to_end = |why: &str| {
+        let bytes = whole_frames(available);
+        let mut text = format!(
+            "{why}; read to the end of the file: {} frames ({} of samples from byte {data_start})",
+            bytes / block,
+            human_bytes(bytes)
+        );
+        let partial = available - bytes;
+        if partial > 0 {
+            text.push_str(&format!(
+                "; the last {partial} bytes are less than a frame and were left out"
+            ));
+        }
+        (bytes, text)
+    };
+
+    let placeholder = u64::from(SIZE_PLACEHOLDER);
+    if container == Container::Riff && declared_bytes == placeholder {
+        let (bytes, text) = read_to_end(
+            "the data chunk declares the size 0xFFFFFFFF, the placeholder a recorder writes \
+             before it finalises the file",
+        );
+        warnings.push(text);
+        return Ok(bytes);
+    }
+    if declared_bytes == 0 && available >= block {
+        // A finalised file with an empty data chunk may carry further chunks after it, and its
+        // RIFF size then covers them; samples after a zero size mean the size was never written.
+        let riff_covers_more =
+            riff_bytes != placeholder && riff_bytes.saturating_add(8) > data_start;
+        if !(riff_covers_more && source.chunk_header_plausible_at(data_start)?) {
+            let why = if container == Container::Riff && available >= FOUR_GIB {
+                "the data chunk declares 0 bytes but sample data follows: the recorder did not \
+                 finalise the file, or its 32-bit size wrapped around at a multiple of 4 GiB"
+            } else {
+                "the data chunk declares 0 bytes but sample data follows: the recorder did not \
+                 finalise the file"
+            };
+            let (bytes, text) = read_to_end(why);
+            warnings.push(text);
+            return Ok(bytes);
+        }
+    }
+    if container == Container::Riff && available >= declared_bytes + FOUR_GIB {
+        // A 32-bit size holds the true size modulo 2^32; the file length says how many times
+        // it wrapped. Trailing chunks after the data are smaller than 4 GiB.
+        let wraps = (available - declared_bytes) / FOUR_GIB;
+        let bytes = whole_frames(declared_bytes + wraps * FOUR_GIB);
+        warnings.push(format!(
+            "the data chunk declares {declared_bytes} bytes but the file holds {available} bytes \
+             from byte {data_start}, where the data starts: a RIFF file over 4 GiB whose 32-bit sizes wrapped \
+             around (RIFF cannot describe more than 4 GiB; RF64 and BW64 can); read {} frames \
+             ({})",
+            bytes / block,
+            human_bytes(bytes)
+        ));
+        return Ok(bytes);
+    }
+    Ok(declared_bytes)
 }
 
 /// Common names of format tags we do not read, to make the error recognisable

@@ -9,7 +9,8 @@
 use super::error::WavError;
 use super::{
     FORMAT_EXTENSIBLE, FORMAT_IEEE_FLOAT, FORMAT_PCM, SCRATCH_BYTES, SIZE_PLACEHOLDER,
-    SUBTYPE_IEEE_FLOAT, SUBTYPE_PCM, SampleFormat, WavSpec,
+    SUBTYPE_AMB_B_FORMAT_IEEE_FLOAT, SUBTYPE_AMB_B_FORMAT_PCM, SUBTYPE_IEEE_FLOAT, SUBTYPE_PCM,
+    SampleFormat, WavSpec,
 };
 use std::fs::File;
 use std::io::{BufWriter, Seek, SeekFrom, Write};
@@ -83,11 +84,46 @@ impl WavWriter<BufWriter<File>> {
             .map_err(|e| WavError::io(format!("creating {}", path.display()), e))?;
         WavWriter::new(BufWriter::new(file), spec, options)
     }
+
+    /// Like [`WavWriter::with_options`], but the extensible fmt chunk carries the AMB B-format
+    /// SubFormat GUID (the `.amb` convention for FuMa files; see [`WavWriter::new_b_format`]).
+    pub fn create_b_format(
+        path: impl AsRef<Path>,
+        spec: WavSpec,
+        options: WriterOptions,
+    ) -> Result<Self, WavError> {
+        let path = path.as_ref();
+        spec.validated_block_align()?;
+        let file = File::create(path)
+            .map_err(|e| WavError::io(format!("creating {}", path.display()), e))?;
+        WavWriter::new_b_format(BufWriter::new(file), spec, options)
+    }
 }
 
 impl<W: Write + Seek> WavWriter<W> {
     /// Writes the header at the current position of `inner` and prepares for samples.
-    pub fn new(mut inner: W, spec: WavSpec, options: WriterOptions) -> Result<Self, WavError> {
+    pub fn new(inner: W, spec: WavSpec, options: WriterOptions) -> Result<Self, WavError> {
+        Self::with_subformat(inner, spec, options, false)
+    }
+
+    /// Like [`WavWriter::new`], but always extensible, with the AMB B-format SubFormat GUID for
+    /// PCM or float and a channel mask of 0, as the `.amb` convention asks. The samples are
+    /// written as given: the caller supplies FuMa channels (W X Y Z R S T U V K L M N O P Q,
+    /// maxN weights, absent components left out of mixed-order sets).
+    pub fn new_b_format(inner: W, spec: WavSpec, options: WriterOptions) -> Result<Self, WavError> {
+        let spec = WavSpec {
+            channel_mask: Some(0),
+            ..spec
+        };
+        Self::with_subformat(inner, spec, options, true)
+    }
+
+    fn with_subformat(
+        mut inner: W,
+        spec: WavSpec,
+        options: WriterOptions,
+        b_format: bool,
+    ) -> Result<Self, WavError> {
         let block_align = spec.validated_block_align()?;
         if block_align > usize::from(u16::MAX) {
             return Err(WavError::InvalidFormat(format!(
@@ -104,7 +140,8 @@ impl<W: Write + Seek> WavWriter<W> {
             (SampleFormat::Float, 32) => Encoding::F32,
             (SampleFormat::Float, _) => Encoding::F64,
         };
-        let extensible = options.extensible || spec.channels > 2 || spec.channel_mask.is_some();
+        let extensible =
+            b_format || options.extensible || spec.channels > 2 || spec.channel_mask.is_some();
         let base = inner
             .stream_position()
             .map_err(|e| WavError::io("finding the write position", e))?;
@@ -150,9 +187,11 @@ impl<W: Write + Seek> WavWriter<W> {
             header.extend_from_slice(&22u16.to_le_bytes()); // cbSize
             header.extend_from_slice(&spec.bits_per_sample.to_le_bytes()); // valid bits
             header.extend_from_slice(&spec.channel_mask.unwrap_or(0).to_le_bytes());
-            header.extend_from_slice(match spec.sample_format {
-                SampleFormat::Int => &SUBTYPE_PCM,
-                SampleFormat::Float => &SUBTYPE_IEEE_FLOAT,
+            header.extend_from_slice(match (b_format, spec.sample_format) {
+                (false, SampleFormat::Int) => &SUBTYPE_PCM,
+                (false, SampleFormat::Float) => &SUBTYPE_IEEE_FLOAT,
+                (true, SampleFormat::Int) => &SUBTYPE_AMB_B_FORMAT_PCM,
+                (true, SampleFormat::Float) => &SUBTYPE_AMB_B_FORMAT_IEEE_FLOAT,
             });
         }
         // A fact chunk (sample frames per channel) accompanies every non-PCM fmt (Microsoft RIFF).
