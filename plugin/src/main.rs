@@ -7,7 +7,7 @@
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use fieldglass::scan::demo::{DemoOptions, write_demo};
 use fieldglass::scan::{
-    CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, json, report_html, scan, summary,
+    AssumedSource, CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, json, report_html, scan, summary,
 };
 use fieldglass_dsp::engine::{MapMethod, Severity};
 use fieldglass_dsp::format::AmbiFormat;
@@ -188,9 +188,10 @@ struct ScanArgs {
     /// Length of the demo scene, seconds.
     #[arg(long, default_value_t = 20.0, requires = "demo")]
     seconds: f64,
-    /// How the file's channels are ordered and normalised.
-    #[arg(long, value_enum, default_value = "acn-sn3d")]
-    assume: FormatArg,
+    /// How the file's channels are ordered and normalised [default: acn-sn3d, or fuma for a
+    /// file that declares the AMB B-format]
+    #[arg(long, value_enum)]
+    assume: Option<FormatArg>,
     /// Write the JSON result to PATH ("-" = stdout, replacing the summary).
     #[arg(long, value_name = "PATH|-")]
     json: Option<String>,
@@ -272,7 +273,12 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
     };
     let defaults = ScanOptions::default();
     let options = ScanOptions {
-        assumed: args.assume.format(),
+        assumed: args.assume.map_or(AmbiFormat::ACN_SN3D, |a| a.format()),
+        assumed_source: if args.assume.is_some() {
+            AssumedSource::Option
+        } else {
+            AssumedSource::Default
+        },
         method: args.method.method(),
         band_edges_hz: args.band.unwrap_or(defaults.band_edges_hz),
         progress: true,

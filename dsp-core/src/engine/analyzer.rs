@@ -107,6 +107,8 @@ pub struct Analyzer {
     load_audio_s: f64,
     /// Why the requested format is not the one in use (see [`Analyzer::apply_settings`]).
     format_not_applied: Option<String>,
+    /// Input channels known to be absent (zero-filled components of a mixed-order set).
+    absent_channels: Vec<usize>,
 }
 
 impl Analyzer {
@@ -173,7 +175,14 @@ impl Analyzer {
             load_busy_s: 0.0,
             load_audio_s: 0.0,
             format_not_applied: None,
+            absent_channels: Vec::new(),
         })
+    }
+
+    /// Declares input channels that are known to be absent (the components a FuMa mixed-order
+    /// file does not carry, zero-filled by the reader): never reported as silent or duplicated.
+    pub fn set_absent_channels(&mut self, channels: &[usize]) {
+        self.absent_channels = channels.to_vec();
     }
 
     pub fn layout(&self) -> ChannelLayout {
@@ -541,7 +550,13 @@ impl Analyzer {
             channel_mean_square: &mean_square[..m],
             frames_seen: self.integrated_frames[full] * self.covariance.framing().hop as u64,
         };
-        self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
+        let mut check = self.checker.check(&input).unwrap_or_default();
+        let absent = &self.absent_channels;
+        check.silent_channels.retain(|c| !absent.contains(c));
+        check
+            .duplicate_channels
+            .retain(|(a, b)| !absent.contains(a) && !absent.contains(b));
+        self.snapshot.format_check = check;
         self.snapshot.programme = self.programme_summary();
     }
 
@@ -589,7 +604,8 @@ impl Analyzer {
                     over_omni: acn.is_some_and(|a| a != 0)
                         && w_active
                         && mean_square_db(sn3d) > mean_square_db(w_sn3d) + tolerance,
-                    silent: mean_square[c] < SILENT_MEAN_SQUARE,
+                    silent: mean_square[c] < SILENT_MEAN_SQUARE
+                        && !self.absent_channels.contains(&c),
                 }
             })
             .collect();

@@ -200,6 +200,9 @@ pub enum FindingCode {
     FormatMismatch,
     InvalidSamples,
     DcOffset,
+    /// The file's declared sizes were wrong (an unfinalised recording, a size that wrapped
+    /// past 4 GiB) and the reader recovered them from the file's length.
+    SizeRecovered,
 }
 
 impl FindingCode {
@@ -213,6 +216,7 @@ impl FindingCode {
             Self::FormatMismatch => "format-mismatch",
             Self::InvalidSamples => "invalid-samples",
             Self::DcOffset => "dc-offset",
+            Self::SizeRecovered => "size-recovered",
         }
     }
 }

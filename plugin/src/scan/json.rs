@@ -54,6 +54,10 @@ pub struct Input {
     pub duration_s: Option<f64>,
     pub sample_format: String,
     pub container: String,
+    /// The file declares the AMB B-format sub-format (FuMa).
+    pub declares_b_format: bool,
+    /// FuMa letters of a horizontal or mixed-order set read as FuMa ("WXYUV"), else null.
+    pub mixed_order_set: Option<String>,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -61,6 +65,8 @@ pub struct Assumed {
     pub ordering: &'static str,
     pub normalization: &'static str,
     pub order: usize,
+    /// "option" (--assume), "metadata" (declared by the file) or "default".
+    pub source: &'static str,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -306,11 +312,14 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             duration_s: rounded(num(result.input.duration_s()), 6),
             sample_format: result.input.sample_format.clone(),
             container: result.input.container.clone(),
+            declares_b_format: result.input.declares_b_format,
+            mixed_order_set: result.input.mixed_order_set.clone(),
         },
         assumed: Assumed {
             ordering,
             normalization,
             order: result.layout.order,
+            source: result.options.assumed_source.label(),
         },
         detected: Detected {
             ordering: detected.map(|f| ordering_label(f.ordering)),

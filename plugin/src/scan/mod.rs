@@ -19,7 +19,8 @@ pub mod run;
 pub mod summary;
 
 pub use run::{
-    BandResult, ChannelSummary, InputInfo, ScanInput, ScanOptions, ScanResult, TimelinePoint, scan,
+    AssumedSource, BandResult, ChannelSummary, InputInfo, ScanInput, ScanOptions, ScanResult,
+    TimelinePoint, scan,
 };
 
 use std::fmt;

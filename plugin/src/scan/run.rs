@@ -11,7 +11,8 @@ use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
 };
-use fieldglass_dsp::format::{AmbiFormat, Normalization};
+use fieldglass_dsp::engine::{FindingCode, Severity};
+use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander, Normalization};
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
 use std::path::PathBuf;
@@ -45,8 +46,12 @@ pub enum ScanInput {
 /// How to scan.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ScanOptions {
-    /// The format the file is read as (the user's choice; the format check only advises).
+    /// The format the file is read as: the user's choice, or the default when
+    /// `assumed_source` is [`AssumedSource::Default`] (a file that declares its format then
+    /// overrides the default, never an explicit choice). The format check only advises.
     pub assumed: AmbiFormat,
+    /// Where `assumed` comes from.
+    pub assumed_source: AssumedSource,
     pub method: MapMethod,
     /// Edges between the low/mid and mid/high bands, Hz.
     pub band_edges_hz: [f64; 2],
@@ -61,10 +66,33 @@ impl Default for ScanOptions {
         let engine = AnalysisSettings::default();
         Self {
             assumed: AmbiFormat::ACN_SN3D,
+            assumed_source: AssumedSource::Default,
             method: MapMethod::MaxRe,
             band_edges_hz: engine.band_edges_hz,
             over_omni_tolerance_db: engine.over_omni_tolerance_db,
             progress: false,
+        }
+    }
+}
+
+/// Where the assumed format comes from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum AssumedSource {
+    /// The user chose it (`--assume`).
+    Option,
+    /// The file declares it (the AMB B-format sub-format declares FuMa).
+    Metadata,
+    /// Nobody said: AmbiX.
+    Default,
+}
+
+impl AssumedSource {
+    /// JSON / summary name.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Option => "option",
+            Self::Metadata => "metadata",
+            Self::Default => "default",
         }
     }
 }
@@ -83,6 +111,13 @@ pub struct InputInfo {
     pub sample_format: String,
     /// "riff", "rf64", "bw64" or "demo".
     pub container: String,
+    /// The file declares the AMB B-format sub-format (a FuMa file).
+    pub declares_b_format: bool,
+    /// FuMa letters of a horizontal or mixed-order channel set ("WXYUV"), when the file is one
+    /// and is read as FuMa; the analysis then runs on the full order with the rest absent.
+    pub mixed_order_set: Option<String>,
+    /// What the reader had to repair (unfinalised or wrapped sizes), in plain words.
+    pub warnings: Vec<String>,
 }
 
 impl InputInfo {
@@ -157,7 +192,11 @@ impl ScanResult {
 
 /// Where blocks come from.
 enum Source {
-    File(WavReader<std::io::BufReader<std::fs::File>>),
+    File {
+        reader: WavReader<std::io::BufReader<std::fs::File>>,
+        /// For a FuMa mixed-order set: the expander and the file-order buffers it reads from.
+        mixed: Option<(MixedOrderExpander, Vec<Vec<f32>>)>,
+    },
     Demo {
         scene: Box<DemoScene>,
         remaining: u64,
@@ -167,9 +206,25 @@ enum Source {
 impl Source {
     fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
         match self {
-            Source::File(reader) => reader
-                .read_planar(buffers, BLOCK_FRAMES)
-                .map_err(|e| CliError::input(format!("cannot read '{name}': {e}"))),
+            Source::File { reader, mixed } => {
+                let unreadable = |e| CliError::input(format!("cannot read '{name}': {e}"));
+                let Some((expander, file_buffers)) = mixed else {
+                    return reader.read_planar(buffers, BLOCK_FRAMES).map_err(unreadable);
+                };
+                let n = reader
+                    .read_planar(file_buffers, BLOCK_FRAMES)
+                    .map_err(unreadable)?;
+                for b in buffers.iter_mut() {
+                    b.resize(n, 0.0);
+                }
+                let input: Vec<&[f32]> = file_buffers.iter().map(|b| &b[..n]).collect();
+                let mut output: Vec<&mut [f32]> =
+                    buffers.iter_mut().map(|b| b.as_mut_slice()).collect();
+                expander
+                    .expand(&input, &mut output)
+                    .map_err(|e| CliError::input(format!("cannot read '{name}': {e}")))?;
+                Ok(n)
+            }
             Source::Demo { scene, remaining } => {
                 let n = (*remaining).min(BLOCK_FRAMES as u64) as usize;
                 for b in buffers.iter_mut() {
@@ -194,7 +249,7 @@ fn describe_sample_format(format: SampleFormat, bits: u16) -> String {
     }
 }
 
-fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
+fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputInfo), CliError> {
     match input {
         ScanInput::File(path) => {
             let name = path.display().to_string();
@@ -207,6 +262,15 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
                 Container::Bw64 => "bw64",
             };
             let sample_format = describe_sample_format(spec.sample_format, spec.bits_per_sample);
+            let declares_b_format = reader.declares_b_format();
+            if declares_b_format && options.assumed_source == AssumedSource::Default {
+                options.assumed = AmbiFormat::FUMA;
+                options.assumed_source = AssumedSource::Metadata;
+            }
+            let channels = spec.channels as usize;
+            let mixed = MixedOrderExpander::for_stream(options.assumed, channels)
+                .map(|e| (e, vec![Vec::with_capacity(BLOCK_FRAMES); channels]));
+            let mixed_order_set = mixed.as_ref().map(|(e, _)| e.set().letters());
             let info = InputInfo {
                 path: Some(path.clone()),
                 description: format!(
@@ -215,19 +279,24 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
                     spec.channels,
                     sample_format,
                     container.to_uppercase(),
-                    if spec.channel_mask.is_some() {
+                    if declares_b_format {
+                        " (extensible, AMB B-format)"
+                    } else if spec.channel_mask.is_some() {
                         " (extensible)"
                     } else {
                         ""
                     }
                 ),
-                channels: spec.channels as usize,
+                channels,
                 sample_rate_hz: spec.sample_rate as f64,
                 frames: reader.frames(),
                 sample_format,
                 container: container.to_string(),
+                declares_b_format,
+                mixed_order_set,
+                warnings: reader.warnings().to_vec(),
             };
-            Ok((Source::File(reader), info))
+            Ok((Source::File { reader, mixed }, info))
         }
         ScanInput::Demo {
             order,
@@ -255,6 +324,9 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
                 frames,
                 sample_format: "float32".to_string(),
                 container: "demo".to_string(),
+                declares_b_format: false,
+                mixed_order_set: None,
+                warnings: Vec::new(),
             };
             Ok((
                 Source::Demo {
@@ -270,9 +342,18 @@ fn open(input: &ScanInput) -> Result<(Source, InputInfo), CliError> {
 /// Scans `input`. Errors carry the exit code: 2 for anything about the input.
 pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliError> {
     let started = Instant::now();
-    let (mut source, info) = open(input)?;
+    let mut options = options;
+    let (mut source, info) = open(input, &mut options)?;
     let name = info.display_name();
-    let layout = ChannelLayout::from_channel_count(info.channels)
+    let expander = match &source {
+        Source::File {
+            mixed: Some((e, _)),
+            ..
+        } => Some(*e),
+        _ => None,
+    };
+    let analysed_channels = expander.map_or(info.channels, |e| e.output_channels());
+    let layout = ChannelLayout::from_channel_count(analysed_channels)
         .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
     if info.frames == 0 {
         return Err(CliError::input(format!(
@@ -300,14 +381,17 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     };
     let setup = StreamSetup {
         sample_rate_hz: info.sample_rate_hz,
-        channels: info.channels,
+        channels: analysed_channels,
     };
     let mut analyzer = Analyzer::new(setup, settings)
         .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    if let Some(e) = &expander {
+        analyzer.set_absent_channels(e.absent_channels());
+    }
     analyzer.reserve_block(BLOCK_FRAMES);
 
     let mut progress = Progress::new(info.frames, info.sample_rate_hz, options.progress);
-    let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); info.channels];
+    let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); analysed_channels];
     let mut timeline = Vec::new();
     let mut timeline_stride = 1usize;
     let mut snapshots_seen = 0usize;
@@ -341,10 +425,22 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     // Every whole-programme figure comes from the engine's programme summary.
     let snapshot = analyzer.finish().clone();
     let programme = &snapshot.programme;
-    let channels = programme.channels.clone();
+    let mut channels = programme.channels.clone();
     let order_balance_db = programme.order_balance_db.clone();
     let effective_order = programme.effective_order;
-    let findings = programme.findings.clone();
+    let mut findings = programme.findings.clone();
+    if let Some(e) = &expander {
+        to_file_channels(e, &mut channels, &mut findings);
+    }
+    for warning in &info.warnings {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::SizeRecovered,
+            message: warning.clone(),
+            channels: Vec::new(),
+        });
+    }
+    findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
 
     // Whole-programme maps per band on a finer grid.
     let report_settings = AnalysisSettings {
@@ -430,4 +526,28 @@ pub fn expected_balance_db(
             Some(10.0 * (energy / (2 * n + 1) as f64 / (w * w)).log10())
         })
         .collect()
+}
+
+/// Channel figures and findings of an expanded mixed-order stream, back in file channels: the
+/// absent components have no row, and findings name file channels.
+fn to_file_channels(
+    expander: &MixedOrderExpander,
+    channels: &mut Vec<ChannelSummary>,
+    findings: &mut Vec<Finding>,
+) {
+    channels.retain_mut(|c| match expander.source_channel(c.input_index) {
+        Some(file_channel) => {
+            c.input_index = file_channel;
+            true
+        }
+        None => false,
+    });
+    channels.sort_by_key(|c| c.input_index);
+    for f in findings.iter_mut() {
+        f.channels = f
+            .channels
+            .iter()
+            .filter_map(|&c| expander.source_channel(c))
+            .collect();
+    }
 }

@@ -1,6 +1,6 @@
 //! The short human summary `fieldglass scan` prints on stdout.
 
-use super::run::ScanResult;
+use super::run::{AssumedSource, ScanResult};
 use fieldglass_dsp::engine::Band;
 use std::fmt::Write;
 
@@ -16,6 +16,14 @@ pub fn format_verdict(result: &ScanResult) -> String {
     let check = &result.snapshot.format_check;
     let assumed = result.options.assumed;
     let mut line = format!("read as {}", assumed.human_name());
+    match result.options.assumed_source {
+        AssumedSource::Metadata => line.push_str(" (as the file declares)"),
+        AssumedSource::Default => line.push_str(" (the default)"),
+        AssumedSource::Option => {}
+    }
+    if let Some(set) = &result.input.mixed_order_set {
+        let _ = write!(line, ", channel set {set}");
+    }
     match check.detected.filter(|_| check.ready) {
         Some(detected) if detected == assumed => {
             let _ = write!(
