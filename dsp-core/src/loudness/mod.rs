@@ -1,8 +1,8 @@
 //! # Loudness of W as a mono programme (ITU-R BS.1770-4, EBU R 128 / Tech 3341 semantics)
 //!
 //! - [`KWeighting`]: the BS.1770 K-weighting pre-filter (high shelf, then the "RLB" high-pass),
-//!   designed for any sample rate from the published design parameters and processed in `f64`.
-//!   At 48 kHz the design reproduces the Recommendation's coefficient tables.
+//!   processed in `f64`: the Recommendation's coefficient tables at 48 kHz, moved to any other
+//!   rate by the matched z-transform so the response matches the 48 kHz one.
 //! - [`LoudnessMeter`]: momentary (400 ms), short-term (3 s) and gated integrated loudness of a
 //!   single channel (the omni channel W), with the maxima of momentary and short-term loudness.
 //!

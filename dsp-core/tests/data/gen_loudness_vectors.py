@@ -8,8 +8,9 @@ pyloudnorm (PyPI `pyloudnorm`, an implementation of ITU-R BS.1770-4):
     fc = 1500 Hz and high-pass Q = 0.5, fc = 38 Hz -- an approximation of the BS.1770 filter);
   - filter_class="DeMan" (the BS.1770 design parameters Vh, Vb, Q, fc with the same bilinear
     design formulas as ours, so it matches the Recommendation's 48 kHz table).
-and a third value from a plain SciPy computation (scipy.signal.lfilter with our filter design,
-exact list of gating blocks) as a cross-check of the histogram gating.
+and a third value from a plain SciPy computation (scipy.signal.lfilter with our filter design --
+the 48 kHz tables moved to the rate by the matched z-transform -- and an exact list of gating
+blocks) as a cross-check of the histogram gating.
 
 Noise: 64-bit LCG state = state * 6364136223846793005 + 1442695040888963407 (mod 2^64), seeded
 per segment with `seed`; sample = 2 * (state >> 11) / 2^53 - 1 (uniform in [-1, 1)), advanced
@@ -84,17 +85,27 @@ def synthesise(fs, segments):
     return np.concatenate(parts).astype(np.float32).astype(np.float64)
 
 
+# ITU-R BS.1770-4 Tables 1 and 2 (48 kHz).
+SHELF_48K = ([1.53512485958697, -2.69169618940638, 1.19839281085285],
+             [1.0, -1.69065929318241, 0.73248077421585])
+HIGH_PASS_48K = ([1.0, -2.0, 1.0], [1.0, -1.99004745483398, 0.99007225036621])
+
+
+def matched_rate(table, fs, z_gain):
+    """The 48 kHz table filter at rate fs by the matched z-transform (roots z -> z**(48000/fs)),
+    gain set so that H(z_gain) equals the table's (1: DC, -1: high-frequency end). This is the
+    derivation dsp-core's KWeighting uses, written independently with numpy.roots."""
+    b, a = (np.asarray(c, dtype=float) for c in table)
+    ratio = 48000.0 / fs
+    nb = np.real(np.poly(np.roots(b).astype(complex) ** ratio))
+    na = np.real(np.poly(np.roots(a).astype(complex) ** ratio))
+    target = np.polyval(b[::-1], 1.0 / z_gain) / np.polyval(a[::-1], 1.0 / z_gain)
+    nb *= target / (np.polyval(nb[::-1], 1.0 / z_gain) / np.polyval(na[::-1], 1.0 / z_gain))
+    return list(nb), list(na)
+
+
 def bs1770_design(fs):
-    vh, vb, q, fc = 1.584864701130855, 1.258720930232562, 0.7071752369554196, 1681.974450955533
-    k = np.tan(np.pi * fc / fs)
-    a0 = 1 + k / q + k * k
-    shelf = ([(vh + vb * k / q + k * k) / a0, 2 * (k * k - vh) / a0, (vh - vb * k / q + k * k) / a0],
-             [1.0, 2 * (k * k - 1) / a0, (1 - k / q + k * k) / a0])
-    q, fc = 0.5003270373238773, 38.13547087602444
-    k = np.tan(np.pi * fc / fs)
-    a0 = 1 + k / q + k * k
-    high_pass = ([1.0, -2.0, 1.0], [1.0, 2 * (k * k - 1) / a0, (1 - k / q + k * k) / a0])
-    return shelf, high_pass
+    return matched_rate(SHELF_48K, fs, 1.0), matched_rate(HIGH_PASS_48K, fs, -1.0)
 
 
 def scipy_exact_integrated(x, fs):
