@@ -575,12 +575,27 @@ fn histogram_gating_matches_exact_block_list() {
     let mut meter = LoudnessMeter::new(fs).unwrap();
     push_in_blocks(&mut meter, &signal, 2048);
 
+    let (exact, above_absolute) = exact_integrated_lufs(&signal, fs);
+    let ours = meter.integrated_lufs().unwrap();
+    println!("ramp: histogram {ours:.5} LUFS, exact block list {exact:.5} LUFS");
+    assert!(
+        (ours - exact).abs() <= 0.01,
+        "histogram {ours} vs exact {exact}"
+    );
+    assert_eq!(meter.gated_block_count(), above_absolute as u64);
+}
+
+/// Slow obvious reference for integrated loudness: the same K-filter, every 400 ms block (100 ms
+/// hop) kept in a list, gates applied exactly as BS.1770-4 eqs. 5–7. Returns the loudness and
+/// the number of blocks above the absolute gate.
+fn exact_integrated_lufs(signal: &[f32], fs: f64) -> (f64, usize) {
     let mut k = KWeighting::new(fs).unwrap();
     let weighted: Vec<f64> = signal
         .iter()
         .map(|&s| k.process_sample(f64::from(s)))
         .collect();
-    let (step, block) = (4800, 19_200);
+    let step = (0.1 * fs).round() as usize;
+    let block = 4 * step;
     let blocks: Vec<f64> = (0..=(weighted.len() - block) / step)
         .map(|j| {
             weighted[j * step..j * step + block]
@@ -602,15 +617,57 @@ fn histogram_gating_matches_exact_block_list() {
         .copied()
         .filter(|&z| lufs(z) > gate)
         .collect();
-    let exact = lufs(kept.iter().sum::<f64>() / kept.len() as f64);
+    (
+        lufs(kept.iter().sum::<f64>() / kept.len() as f64),
+        above_absolute.len(),
+    )
+}
 
+#[test]
+fn integrated_loudness_is_defined_far_above_full_scale() {
+    // BS.1770-4 eq. 2 has no upper limit, and a float programme can lie far above full scale.
+    // Loudness is 10·log10 of the mean square, so the −3.01 LKFS anchor (0 dBFS 997 Hz sine)
+    // scales exactly: amplitude A reads −3.01 + 20·log10(A).
+    let fs = 48_000.0;
+    for target_lufs in [22.0, 100.0, 300.0, 700.0, 760.0] {
+        let amplitude = 10f64.powf((target_lufs + 3.0103) / 20.0);
+        let mut meter = LoudnessMeter::new(fs).unwrap();
+        push_in_blocks(
+            &mut meter,
+            &sine(997.0, amplitude, 0.0, fs, 5 * 48_000),
+            4096,
+        );
+        let integrated = meter.integrated_lufs().expect("defined");
+        let momentary = meter.momentary_lufs().expect("defined");
+        println!(
+            "sine at {target_lufs:+} LUFS: integrated {integrated:+.4}, momentary {momentary:+.4}"
+        );
+        assert!(
+            (integrated - target_lufs).abs() <= 0.01,
+            "{target_lufs}: {integrated}"
+        );
+        assert!(
+            (momentary - target_lufs).abs() <= 0.01,
+            "{target_lufs}: {momentary}"
+        );
+    }
+    // The relative gate works up there too: +300, +292 (kept) and +250 LUFS (10 s each; the
+    // last is more than 10 LU down and gated out), against the exact block list.
+    let steps: Vec<(f64, f64)> = [300.0, 292.0, 250.0]
+        .iter()
+        .map(|&lufs| (lufs + 3.0103, 10.0))
+        .collect();
+    let signal = stepped_sine(997.0, fs, &steps);
+    let mut meter = LoudnessMeter::new(fs).unwrap();
+    push_in_blocks(&mut meter, &signal, 4096);
+    let (exact, _) = exact_integrated_lufs(&signal, fs);
     let ours = meter.integrated_lufs().unwrap();
-    println!("ramp: histogram {ours:.5} LUFS, exact block list {exact:.5} LUFS");
+    println!("+300/+292/+250 LUFS programme: {ours:.4} LUFS, exact block list {exact:.4}");
+    assert!((ours - exact).abs() <= 0.01, "{ours} vs {exact}");
     assert!(
-        (ours - exact).abs() <= 0.01,
-        "histogram {ours} vs exact {exact}"
+        (ours - 297.63).abs() < 0.1,
+        "{ours}: the +250 section must be gated out"
     );
-    assert_eq!(meter.gated_block_count(), above_absolute.len() as u64);
 }
 
 #[test]

@@ -207,7 +207,8 @@ impl LoudnessMeter {
     /// Gated integrated loudness (BS.1770-4 §2.3: 400 ms blocks with 75 % overlap, absolute
     /// gate −70 LUFS, relative gate −10 LU) of everything pushed since construction or reset.
     /// Within 0.01 LU of the exact block-list computation (see [`GatingHistogram`]); a trailing
-    /// partial block is not counted. Costs a pass over 8000 bins.
+    /// partial block is not counted. Defined at any level a float programme can reach. Walks the
+    /// histogram bins from the relative gate up to the loudest block.
     pub fn integrated_lufs(&self) -> Option<f64> {
         self.histogram.integrated_lufs()
     }
