@@ -21,5 +21,5 @@ pub use gating::{GATING_BIN_WIDTH_LU, GATING_HISTOGRAM_MAX_LUFS, GatingHistogram
 pub use k_weighting::{BiquadCoefficients, KWeighting};
 pub use meter::{
     ABSOLUTE_GATE_LUFS, LoudnessError, LoudnessMeter, MAX_SAMPLE_RATE_HZ, MIN_SAMPLE_RATE_HZ,
-    RELATIVE_GATE_LU, energy_to_lufs,
+    RELATIVE_GATE_LU, SUB_STEPS_PER_STEP, energy_to_lufs,
 };
