@@ -773,36 +773,45 @@ impl SegmentLanes {
     }
 
     /// Adds `samples`, the first at position `position` of the segment. Non-finite samples
-    /// add 0 (pass `all_finite = true` only when there are none).
+    /// add 0 (pass `all_finite = true` only when there are none). At most [`CHUNK`] samples.
     fn add(&mut self, samples: &[f32], position: usize, all_finite: bool, dc: &DcWeights) {
-        let clean = |x: f32| {
-            if all_finite || x.is_finite() {
-                f64::from(x)
-            } else {
-                0.0
+        let mut clean = [0.0f32; CHUNK];
+        let samples = if all_finite {
+            samples
+        } else {
+            let clean = &mut clean[..samples.len()];
+            for (c, &x) in clean.iter_mut().zip(samples) {
+                *c = if x.is_finite() { x } else { 0.0 };
             }
+            &*clean
         };
         let end = position + samples.len();
         let (first, second) = (&dc.first[position..end], &dc.second[position..end]);
-        let head = (SUM_LANES - position % SUM_LANES) % SUM_LANES;
-        let head = head.min(samples.len());
-        for i in 0..head {
-            let lane = (position + i) % SUM_LANES;
-            self.accumulate(lane, clean(samples[i]), first[i], second[i]);
-        }
-        let groups = samples[head..]
-            .chunks_exact(SUM_LANES)
-            .zip(first[head..].chunks_exact(SUM_LANES))
-            .zip(second[head..].chunks_exact(SUM_LANES));
+        let head = ((SUM_LANES - position % SUM_LANES) % SUM_LANES).min(samples.len());
         let grouped = (samples.len() - head) / SUM_LANES * SUM_LANES;
-        for ((xs, w1), w2) in groups {
-            for lane in 0..SUM_LANES {
-                self.accumulate(lane, clean(xs[lane]), w1[lane], w2[lane]);
-            }
+        // Head, groups, tail: each lane adds its samples in position order.
+        for i in 0..head {
+            self.accumulate(
+                (position + i) % SUM_LANES,
+                f64::from(samples[i]),
+                first[i],
+                second[i],
+            );
         }
+        let range = head..head + grouped;
+        add_groups(
+            self,
+            &samples[range.clone()],
+            &first[range.clone()],
+            &second[range],
+        );
         for i in head + grouped..samples.len() {
-            let lane = (position + i) % SUM_LANES;
-            self.accumulate(lane, clean(samples[i]), first[i], second[i]);
+            self.accumulate(
+                (position + i) % SUM_LANES,
+                f64::from(samples[i]),
+                first[i],
+                second[i],
+            );
         }
     }
 
@@ -816,6 +825,46 @@ impl SegmentLanes {
             dc_second: fold(&self.dc_second),
         }
     }
+}
+
+/// Adds whole groups of [`SUM_LANES`] samples (the first in lane 0). Uses AVX where the CPU
+/// has it; both paths do the same multiplies and adds in the same order (no fused
+/// multiply-add), so the sums are bit-identical on every x86-64 machine.
+fn add_groups(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx") {
+            // SAFETY: the CPU supports AVX (checked just above).
+            return unsafe { add_groups_avx(lanes, samples, first, second) };
+        }
+    }
+    add_groups_portable(lanes, samples, first, second)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn add_groups_avx(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    add_groups_portable(lanes, samples, first, second)
+}
+
+/// The accumulators live in locals for the loop, so they stay in registers.
+#[inline(always)]
+fn add_groups_portable(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    let mut acc = *lanes;
+    let groups = samples
+        .chunks_exact(SUM_LANES)
+        .zip(first.chunks_exact(SUM_LANES))
+        .zip(second.chunks_exact(SUM_LANES));
+    for ((xs, w1), w2) in groups {
+        for lane in 0..SUM_LANES {
+            let x = f64::from(xs[lane]);
+            acc.sum_squares[lane] += x * x;
+            acc.sum[lane] += x;
+            acc.dc_first[lane] += w1[lane] * x;
+            acc.dc_second[lane] += w2[lane] * x;
+        }
+    }
+    *lanes = acc;
 }
 
 fn finish_segment(state: &mut ChannelState, dc: &DcWeights, segment_s: f64, hold_s: f64) {
