@@ -4,7 +4,8 @@
 //!   processed in `f64`: the Recommendation's coefficient tables at 48 kHz, moved to any other
 //!   rate by the matched z-transform so the response matches the 48 kHz one.
 //! - [`LoudnessMeter`]: momentary (400 ms), short-term (3 s) and gated integrated loudness of a
-//!   single channel (the omni channel W), with the maxima of momentary and short-term loudness.
+//!   single channel (the omni channel W), with the maxima of momentary and short-term loudness
+//!   over sliding windows (every 2.5 ms, as EBU Tech 3341's sliding windows ask).
 //!
 //! Mono programme: `L_K = −0.691 + 10·log10(z)` with `z` the mean square of the K-weighted
 //! signal and channel weight 1.0. Values are in LUFS (≡ LKFS).
