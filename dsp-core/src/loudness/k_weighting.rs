@@ -1,17 +1,27 @@
-//! K-weighting pre-filter of ITU-R BS.1770-4 (§2.1), designed for any sample rate.
+//! K-weighting pre-filter of ITU-R BS.1770-4 (§2.1), derived for any sample rate from the
+//! Recommendation's 48 kHz tables.
 
 use super::meter::{LoudnessError, check_sample_rate};
 
-/// Shelf design parameters (BS.1770 stage 1). Gain at high frequencies `Vh` (≈ +4 dB), band
-/// gain `Vb`, quality factor and corner frequency. These are the widely transcribed parameters
-/// that reproduce the Recommendation's 48 kHz table (see `tests/loudness_reference.rs`).
-const SHELF_VH: f64 = 1.584864701130855;
-const SHELF_VB: f64 = 1.258720930232562;
-const SHELF_Q: f64 = 0.7071752369554196;
-const SHELF_FC_HZ: f64 = 1681.974450955533;
-/// RLB high-pass design parameters (BS.1770 stage 2).
-const HIGH_PASS_Q: f64 = 0.5003270373238773;
-const HIGH_PASS_FC_HZ: f64 = 38.13547087602444;
+/// The Recommendation's coefficient tables (ITU-R BS.1770-4 Tables 1 and 2), normative at
+/// 48 kHz. Every other rate is derived from them (see [`KWeighting`]).
+const TABLE_RATE_HZ: f64 = 48_000.0;
+/// Stage 1, the high shelf (+4 dB above ~1.7 kHz), at 48 kHz.
+const SHELF_48K: BiquadCoefficients = BiquadCoefficients {
+    b0: 1.53512485958697,
+    b1: -2.69169618940638,
+    b2: 1.19839281085285,
+    a1: -1.69065929318241,
+    a2: 0.73248077421585,
+};
+/// Stage 2, the RLB high-pass (~38 Hz), at 48 kHz.
+const HIGH_PASS_48K: BiquadCoefficients = BiquadCoefficients {
+    b0: 1.0,
+    b1: -2.0,
+    b2: 1.0,
+    a1: -1.99004745483398,
+    a2: 0.99007225036621,
+};
 
 /// Coefficients of one biquad, normalised so that `a0 = 1`:
 /// `H(z) = (b0 + b1 z⁻¹ + b2 z⁻²) / (1 + a1 z⁻¹ + a2 z⁻²)`.
@@ -73,7 +83,17 @@ impl Biquad {
 }
 
 /// The BS.1770 K-weighting filter: a high shelf (+4 dB above ~1.7 kHz) followed by the RLB
-/// high-pass (~38 Hz), both bilinear-transform designs from the BS.1770 design parameters.
+/// high-pass (~38 Hz).
+///
+/// At 48 kHz the coefficients are the Recommendation's tables. At any other rate each stage keeps
+/// the tables' poles and zeros in the s-plane: a root `z` of the 48 kHz filter becomes
+/// `z^(48000/fs)`, i.e. `e^{sT}` with the same `s` (the matched z-transform). The shelf keeps the
+/// table's DC gain and the high-pass the table's high-frequency gain (`H(−1)`, +0.043 dB: the
+/// Recommendation's high-pass numerator `1, −2, 1` is not normalised, so it must be rescaled with
+/// the rate). From 22.05 kHz up the magnitude response then matches the 48 kHz table filter within
+/// 0.001 dB from 10 Hz to 0.45·fs (checked in `tests/loudness_reference.rs`); the bilinear design
+/// from the published analog parameters drifts by up to 0.03 dB at 997 Hz, which is why it is not
+/// used.
 ///
 /// State is `f64`; feed only finite samples ([`super::LoudnessMeter`] replaces non-finite
 /// input by 0 before filtering).
@@ -88,10 +108,11 @@ impl KWeighting {
     /// Designs the filter for `sample_rate_hz` (8 kHz … 768 kHz).
     pub fn new(sample_rate_hz: f64) -> Result<Self, LoudnessError> {
         check_sample_rate(sample_rate_hz)?;
+        let ratio = TABLE_RATE_HZ / sample_rate_hz;
         Ok(Self {
             sample_rate_hz,
-            shelf: Biquad::new(design_shelf(sample_rate_hz)),
-            high_pass: Biquad::new(design_high_pass(sample_rate_hz)),
+            shelf: Biquad::new(match_rate(&SHELF_48K, ratio, 1.0)),
+            high_pass: Biquad::new(match_rate(&HIGH_PASS_48K, ratio, -1.0)),
         })
     }
 
@@ -105,7 +126,8 @@ impl KWeighting {
         self.shelf.c
     }
 
-    /// Stage 2 (RLB high-pass) coefficients; `b = 1, −2, 1` as in the Recommendation.
+    /// Stage 2 (RLB high-pass) coefficients; `b = 1, −2, 1` at 48 kHz as in the Recommendation,
+    /// a multiple of it at other rates.
     pub fn high_pass_coefficients(&self) -> BiquadCoefficients {
         self.high_pass.c
     }
@@ -129,30 +151,40 @@ impl KWeighting {
     }
 }
 
-fn design_shelf(sample_rate_hz: f64) -> BiquadCoefficients {
-    let k = (std::f64::consts::PI * SHELF_FC_HZ / sample_rate_hz).tan();
-    let k2 = k * k;
-    let a0 = 1.0 + k / SHELF_Q + k2;
+/// `table` moved to another rate by the matched z-transform: both root pairs are raised to the
+/// power `ratio` (= 48 kHz / fs), then the gain is set so that `H(z_gain)` is the table's
+/// (`z_gain` = 1 for DC, −1 for the high-frequency end).
+fn match_rate(table: &BiquadCoefficients, ratio: f64, z_gain: f64) -> BiquadCoefficients {
+    let (q1, q2) = match_roots(table.b1 / table.b0, table.b2 / table.b0, ratio);
+    let (a1, a2) = match_roots(table.a1, table.a2, ratio);
+    let response = |b0: f64, b1: f64, b2: f64, a1: f64, a2: f64| {
+        (b0 + b1 * z_gain + b2) / (1.0 + a1 * z_gain + a2)
+    };
+    let target = response(table.b0, table.b1, table.b2, table.a1, table.a2);
+    let b0 = target / response(1.0, q1, q2, a1, a2);
     BiquadCoefficients {
-        b0: (SHELF_VH + SHELF_VB * k / SHELF_Q + k2) / a0,
-        b1: 2.0 * (k2 - SHELF_VH) / a0,
-        b2: (SHELF_VH - SHELF_VB * k / SHELF_Q + k2) / a0,
-        a1: 2.0 * (k2 - 1.0) / a0,
-        a2: (1.0 - k / SHELF_Q + k2) / a0,
+        b0,
+        b1: b0 * q1,
+        b2: b0 * q2,
+        a1,
+        a2,
     }
 }
 
-fn design_high_pass(sample_rate_hz: f64) -> BiquadCoefficients {
-    let k = (std::f64::consts::PI * HIGH_PASS_FC_HZ / sample_rate_hz).tan();
-    let k2 = k * k;
-    let a0 = 1.0 + k / HIGH_PASS_Q + k2;
-    // The Recommendation keeps the numerator at 1, −2, 1 (not divided by a0); the small
-    // passband gain this leaves is part of the standard's filter and of its anchor values.
-    BiquadCoefficients {
-        b0: 1.0,
-        b1: -2.0,
-        b2: 1.0,
-        a1: 2.0 * (k2 - 1.0) / a0,
-        a2: (1.0 - k / HIGH_PASS_Q + k2) / a0,
+/// Maps the roots of `1 + c1·z⁻¹ + c2·z⁻²` to their power `ratio` and returns the new `(c1, c2)`.
+/// A conjugate pair `r·e^{±jθ}` becomes `r^ratio·e^{±j·ratio·θ}`; real roots must be positive
+/// (true of both K-weighting stages; a double root at z = 1 stays there).
+fn match_roots(c1: f64, c2: f64, ratio: f64) -> (f64, f64) {
+    let discriminant = c1 * c1 - 4.0 * c2;
+    if discriminant < 0.0 {
+        let theta = (0.5 * (-discriminant).sqrt()).atan2(-0.5 * c1);
+        let radius = c2.sqrt().powf(ratio);
+        (-2.0 * radius * (ratio * theta).cos(), radius * radius)
+    } else {
+        let half_root = 0.5 * discriminant.sqrt();
+        let (r1, r2) = (-0.5 * c1 + half_root, -0.5 * c1 - half_root);
+        debug_assert!(r1 > 0.0 && r2 > 0.0, "negative real root {r1}, {r2}");
+        let (m1, m2) = (r1.powf(ratio), r2.powf(ratio));
+        (-(m1 + m2), m1 * m2)
     }
 }

@@ -5,6 +5,35 @@ use std::fmt;
 use super::true_peak::{CHUNK, TruePeakMeter};
 use super::{LEVEL_FLOOR_DB, amplitude_to_db, mean_square_to_db};
 
+/// Where the samples came from, which decides what a sample at full scale (a clip) is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum FullScale {
+    /// Floating-point samples: a finite sample with `|x| ≥ 1.0` is at full scale.
+    #[default]
+    Float,
+    /// Integer PCM of `bits` bits (2 … 32), read as `code / 2^(bits−1)`: the highest code then
+    /// reads `1 − 2^(1−bits)` (never +1.0), the lowest −1.0. A sample at or above the f32 value of
+    /// the highest code, or at or below −1.0, is at full scale (either extreme code). For 8-bit
+    /// unsigned PCM the highest code 255 reads 127/128, the same as signed 8-bit; for 32-bit the
+    /// highest code rounds to 1.0 in f32.
+    Integer { bits: u16 },
+}
+
+impl FullScale {
+    /// `(high, low)`: a finite sample `x` is at full scale when `x ≥ high` or `x ≤ low`.
+    pub fn thresholds(self) -> (f32, f32) {
+        match self {
+            Self::Float => (1.0, -1.0),
+            Self::Integer { bits } => {
+                let half = 2f64.powi(i32::from(bits.clamp(2, 32)) - 1);
+                // The reader's value of the highest code, rounded to f32 once (exact below
+                // 25 bits).
+                (((half - 1.0) / half) as f32, -1.0)
+            }
+        }
+    }
+}
+
 /// Settings of a [`ChannelMeters`] strip.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ChannelMeterConfig {
@@ -16,8 +45,9 @@ pub struct ChannelMeterConfig {
     pub segment_ms: f64,
     /// How long a peak hold keeps its highest value, in seconds. Default 2 s.
     pub peak_hold_s: f64,
-    /// A sample with `|x| ≥ clip_threshold` counts as a clip. Default 1.0 (0 dBFS).
-    pub clip_threshold: f32,
+    /// What a sample at full scale (a clip) is: it depends on where the samples came from.
+    /// Default [`FullScale::Float`].
+    pub full_scale: FullScale,
     /// A channel whose window level exceeds W's by more than this is flagged, in dB.
     /// Default 0.5 dB.
     pub over_omni_tolerance_db: f64,
@@ -29,7 +59,7 @@ impl Default for ChannelMeterConfig {
             window_ms: 300.0,
             segment_ms: 10.0,
             peak_hold_s: 2.0,
-            clip_threshold: 1.0,
+            full_scale: FullScale::Float,
             over_omni_tolerance_db: 0.5,
         }
     }
@@ -93,12 +123,18 @@ pub struct ChannelReading {
     pub max_sample_peak_dbfs: f64,
     /// Highest true peak since construction or `reset_holds`, dBTP.
     pub max_true_peak_dbtp: f64,
-    /// Samples with `|x| ≥ clip_threshold` since construction or `reset_clips`.
+    /// Samples at full scale (either sign, see [`FullScale`]) since construction or
+    /// `reset_clips`.
     pub clip_count: u64,
+    /// Longest run of consecutive samples at full scale (either sign, across blocks) since
+    /// construction or `reset_clips`.
+    pub longest_clip_run: u64,
     /// NaN or ±∞ samples since construction or `reset_clips`; they are left out of every other
-    /// measure (and enter the true-peak filter as 0).
+    /// measure (and enter the true-peak and DC filters as 0).
     pub invalid_sample_count: u64,
-    /// Mean of the valid samples in the window, linear (1.0 = full scale).
+    /// DC offset, linear (1.0 = full scale): the signal through two cascaded one-pole
+    /// low-passes of [`DC_TIME_CONSTANT_S`] each, read at the last segment boundary (see
+    /// [`ChannelMeters`]); 0 while the window holds no valid sample.
     pub dc_offset: f64,
     /// Window level above W's by more than the tolerance (always false for W itself).
     pub over_omni: bool,
@@ -115,12 +151,77 @@ impl Default for ChannelReading {
             max_sample_peak_dbfs: LEVEL_FLOOR_DB,
             max_true_peak_dbtp: LEVEL_FLOOR_DB,
             clip_count: 0,
+            longest_clip_run: 0,
             invalid_sample_count: 0,
             dc_offset: 0.0,
             over_omni: false,
         }
     }
 }
+
+/// Whole-programme totals of one channel (plain data, linear values): everything pushed since
+/// construction, [`ChannelMeters::reset`] or [`ChannelMeters::reset_programme`]; never touched by
+/// `reset_holds` or `reset_clips`. Exact at any moment, including the samples of a segment not
+/// yet complete.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct ProgrammeTotals {
+    /// Largest |sample| of the valid samples (1.0 = full scale).
+    pub max_sample_peak: f64,
+    /// Largest 4× interpolated |sample| (BS.1770-4 Annex 2), never below `max_sample_peak`.
+    pub max_true_peak: f64,
+    /// Sum of the valid samples.
+    pub sum: f64,
+    /// Sum of the squares of the valid samples.
+    pub sum_squares: f64,
+    /// Number of valid (finite) samples.
+    pub valid_samples: u64,
+    /// Samples at full scale (either sign, see [`FullScale`]).
+    pub clip_count: u64,
+    /// Longest run of consecutive samples at full scale.
+    pub longest_clip_run: u64,
+    /// NaN or ±∞ samples.
+    pub invalid_samples: u64,
+}
+
+impl ProgrammeTotals {
+    /// Mean of the valid samples (the whole-programme DC offset), 0 without valid samples.
+    pub fn mean(&self) -> f64 {
+        if self.valid_samples == 0 {
+            0.0
+        } else {
+            self.sum / self.valid_samples as f64
+        }
+    }
+
+    /// RMS level of the valid samples in dBFS (floored at [`LEVEL_FLOOR_DB`]).
+    pub fn rms_dbfs(&self) -> f64 {
+        if self.valid_samples == 0 {
+            LEVEL_FLOOR_DB
+        } else {
+            mean_square_to_db(self.sum_squares / self.valid_samples as f64)
+        }
+    }
+
+    /// `max_sample_peak` in dBFS (floored).
+    pub fn sample_peak_dbfs(&self) -> f64 {
+        amplitude_to_db(self.max_sample_peak)
+    }
+
+    /// `max_true_peak` in dBTP (floored).
+    pub fn true_peak_dbtp(&self) -> f64 {
+        amplitude_to_db(self.max_true_peak)
+    }
+}
+
+/// Time constant of each of the two cascaded one-pole low-passes that give the live DC offset,
+/// in seconds. Their product response is `1 / (1 + (2π f τ)²)` in amplitude: −88 dB at 25 Hz,
+/// −102 dB at 55 Hz, −72 dB at 10 Hz, so bass notes and kick drums leave the reading alone. A
+/// step in DC reaches the reading as `1 − e^(−t/τ)·(1 + t/τ)`: within 0.5 dB after 4.7 s and
+/// within 1 % after [`DC_SETTLE_S`] (6.7 s).
+pub const DC_TIME_CONSTANT_S: f64 = 1.0;
+/// Time after a change of DC offset by which the reading is within 1 % of the new value
+/// (two cascaded one-poles: `e^(−t/τ)·(1 + t/τ) = 0.01` at `t = 6.64 τ`).
+pub const DC_SETTLE_S: f64 = 6.7;
 
 /// Sums over one segment of valid samples.
 #[derive(Debug, Clone, Copy, Default)]
@@ -164,6 +265,80 @@ impl PeakHold {
     }
 }
 
+/// Counts samples at full scale and the longest run of them. The run in progress carries over
+/// from one piece (block, segment) to the next.
+#[derive(Debug, Clone, Copy, Default)]
+struct ClipCounter {
+    count: u64,
+    run: u64,
+    longest_run: u64,
+}
+
+impl ClipCounter {
+    #[inline]
+    fn sample(&mut self, at_full_scale: bool) {
+        if at_full_scale {
+            self.count += 1;
+            self.run += 1;
+            self.longest_run = self.longest_run.max(self.run);
+        } else {
+            self.run = 0;
+        }
+    }
+}
+
+/// A sum of many f64 terms with Neumaier's compensation, so hours of segment sums stay exact
+/// to the last bits.
+#[derive(Debug, Clone, Copy, Default)]
+struct CompensatedSum {
+    sum: f64,
+    compensation: f64,
+}
+
+impl CompensatedSum {
+    fn starting_at(value: f64) -> Self {
+        Self {
+            sum: value,
+            compensation: 0.0,
+        }
+    }
+
+    fn add(&mut self, x: f64) {
+        let t = self.sum + x;
+        self.compensation += if self.sum.abs() >= x.abs() {
+            (self.sum - t) + x
+        } else {
+            (x - t) + self.sum
+        };
+        self.sum = t;
+    }
+
+    fn value(&self) -> f64 {
+        self.sum + self.compensation
+    }
+}
+
+/// Whole-programme accumulators of one channel. Peaks and counts are updated per piece; the
+/// sums are folded in per completed segment (block-size independent), and the current
+/// segment's partial sums are added when read.
+#[derive(Debug, Clone, Copy, Default)]
+struct Programme {
+    max_sample_peak: f64,
+    max_true_peak: f64,
+    sum: CompensatedSum,
+    sum_squares: CompensatedSum,
+    valid_samples: u64,
+    invalid_samples: u64,
+    clips: ClipCounter,
+}
+
+/// State of the DC filter: outputs of the first and second one-pole low-pass.
+#[derive(Debug, Clone, Copy, Default)]
+struct DcFilter {
+    first: f64,
+    second: f64,
+}
+
 #[derive(Debug, Clone)]
 struct ChannelState {
     true_peak: TruePeakMeter,
@@ -181,8 +356,10 @@ struct ChannelState {
     true_peak_hold: PeakHold,
     max_sample_peak: f64,
     max_true_peak: f64,
-    clip_count: u64,
+    clips: ClipCounter,
     invalid_sample_count: u64,
+    dc: DcFilter,
+    programme: Programme,
 }
 
 impl ChannelState {
@@ -200,8 +377,10 @@ impl ChannelState {
             true_peak_hold: PeakHold::default(),
             max_sample_peak: 0.0,
             max_true_peak: 0.0,
-            clip_count: 0,
+            clips: ClipCounter::default(),
             invalid_sample_count: 0,
+            dc: DcFilter::default(),
+            programme: Programme::default(),
         }
     }
 
@@ -214,14 +393,68 @@ impl ChannelState {
     }
 }
 
+/// The DC filter run over one whole segment at once. Two cascaded one-poles
+/// `y[n] = a·y[n−1] + α·x[n]`, `z[n] = a·z[n−1] + α·y[n]` (α = 1 − a, a = e^(−1/(τ·fs))) advance
+/// over a segment of L samples as
+/// `y_L = a^L·y_0 + Σ_p α·a^(L−1−p)·x[p]` and
+/// `z_L = a^L·z_0 + L·α·a^L·y_0 + Σ_p α²·(L−p)·a^(L−1−p)·x[p]`,
+/// so the per-sample filter is evaluated exactly at segment ends with two weighted sums that
+/// vectorise like the other segment sums (no serial recursion per sample).
+#[derive(Debug, Clone)]
+struct DcWeights {
+    /// `α·a^(L−1−p)` and `α²·(L−p)·a^(L−1−p)`, indexed by position p in the segment.
+    first: Vec<f64>,
+    second: Vec<f64>,
+    /// `a^L` and `L·α·a^L`.
+    decay: f64,
+    cross: f64,
+}
+
+impl DcWeights {
+    fn new(segment_len: usize, sample_rate_hz: f64) -> Self {
+        let a = (-1.0 / (DC_TIME_CONSTANT_S * sample_rate_hz)).exp();
+        let alpha = -(-1.0 / (DC_TIME_CONSTANT_S * sample_rate_hz)).exp_m1();
+        let len = segment_len as f64;
+        let power = |k: usize| a.powi(k as i32);
+        Self {
+            first: (0..segment_len)
+                .map(|p| alpha * power(segment_len - 1 - p))
+                .collect(),
+            second: (0..segment_len)
+                .map(|p| alpha * alpha * (segment_len - p) as f64 * power(segment_len - 1 - p))
+                .collect(),
+            decay: power(segment_len),
+            cross: len * alpha * power(segment_len),
+        }
+    }
+
+    /// Advances `filter` over a segment whose weighted sums are `first_sum`, `second_sum`.
+    fn advance(&self, filter: &mut DcFilter, first_sum: f64, second_sum: f64) {
+        let y0 = filter.first;
+        filter.second = self.decay * filter.second + self.cross * y0 + second_sum;
+        filter.first = self.decay * y0 + first_sum;
+    }
+}
+
 /// Meters for every channel of a stream (ACN order; channel 0 is W).
 ///
-/// Window measures (sample peak, true peak, RMS, DC offset, over-omni) cover the last
-/// `window_ms`, sliding by one `segment_ms` segment: per segment the meter keeps the sum of
-/// squares, the sum, the valid-sample count and the peaks, and the window is the union of the
-/// last segments (exact sums, no per-sample ring). Readings change when a segment completes,
-/// so they do not depend on the host block size. Before the first window is complete the
-/// window covers the segments seen so far.
+/// Window measures (sample peak, true peak, RMS, over-omni) cover the last `window_ms`,
+/// sliding by one `segment_ms` segment: per segment the meter keeps the sum of squares, the
+/// sum, the valid-sample count and the peaks, and the window is the union of the last segments
+/// (exact sums, no per-sample ring). Readings change when a segment completes, so they do not
+/// depend on the host block size. Before the first window is complete the window covers the
+/// segments seen so far.
+///
+/// The DC offset is not a window mean (a 300 ms mean moves with every bass note): it is the
+/// signal through two cascaded one-pole low-passes of [`DC_TIME_CONSTANT_S`] (1 s) each,
+/// evaluated exactly at segment ends. It rejects 25 Hz by 88 dB and settles to within 1 % of a
+/// new offset in [`DC_SETTLE_S`] (6.7 s). The whole-programme mean is in
+/// [`ProgrammeTotals::mean`].
+///
+/// Clips are samples at full scale of either sign as [`FullScale`] defines them; the strip
+/// counts them and the longest run of consecutive ones, and scans a piece for them only when
+/// its peak reaches full scale. [`programme`](Self::programme) gives whole-programme totals that
+/// no hold or clip reset clears.
 ///
 /// Construction allocates; [`push`](Self::push) never allocates.
 #[derive(Debug, Clone)]
@@ -230,6 +463,7 @@ pub struct ChannelMeters {
     sample_rate_hz: f64,
     segment_len: usize,
     segment_s: f64,
+    dc_weights: DcWeights,
     channels: Vec<ChannelState>,
 }
 
@@ -267,13 +501,15 @@ impl ChannelMeters {
             3_600.0,
             "0 to 3600 s",
         )?;
-        check_config(
-            "clip_threshold",
-            f64::from(config.clip_threshold),
-            f64::MIN_POSITIVE,
-            f64::MAX,
-            "a finite value above 0",
-        )?;
+        if let FullScale::Integer { bits } = config.full_scale {
+            check_config(
+                "full_scale bits",
+                f64::from(bits),
+                2.0,
+                32.0,
+                "2 to 32 bits",
+            )?;
+        }
         check_config(
             "over_omni_tolerance_db",
             config.over_omni_tolerance_db,
@@ -288,6 +524,7 @@ impl ChannelMeters {
             sample_rate_hz,
             segment_len,
             segment_s: segment_len as f64 / sample_rate_hz,
+            dc_weights: DcWeights::new(segment_len, sample_rate_hz),
             channels: (0..channels)
                 .map(|_| ChannelState::new(segments_per_window))
                 .collect(),
@@ -314,11 +551,16 @@ impl ChannelMeters {
         self.channels[0].ring.len() as f64 * self.segment_s
     }
 
+    /// Actual segment length (the step of every window reading), in seconds.
+    pub fn segment_s(&self) -> f64 {
+        self.segment_s
+    }
+
     /// Feeds one block: `input[channel]` holds that channel's samples. Channels beyond
     /// [`channels`](Self::channels) are ignored and missing ones are left as they are; each
     /// channel advances by its own slice length. Never allocates.
     pub fn push(&mut self, input: &[&[f32]]) {
-        let clip_threshold = self.config.clip_threshold;
+        let (high, low) = self.config.full_scale.thresholds();
         for (state, samples) in self.channels.iter_mut().zip(input) {
             let mut offset = 0;
             while offset < samples.len() {
@@ -330,25 +572,30 @@ impl ChannelMeters {
                 // its count of non-finite samples.
                 let peaks = state.true_peak.measure(piece);
                 let finite = peaks.invalid_samples == 0;
-                state.lanes.add(piece, state.current_fill, finite);
-                let seg = &mut state.current;
+                state
+                    .lanes
+                    .add(piece, state.current_fill, finite, &self.dc_weights);
                 let (peak, valid) = (peaks.sample_peak, n as u64 - peaks.invalid_samples);
-                let true_peak = peaks.true_peak;
-                // Clips are rare: count only when the peak says there is something to count.
-                if peak >= clip_threshold {
-                    state.clip_count += piece
-                        .iter()
-                        .filter(|x| x.is_finite() && x.abs() >= clip_threshold)
-                        .count() as u64;
-                }
+                count_clips(state, piece, peak, high, low);
+                let seg = &mut state.current;
                 seg.valid_count += valid;
                 seg.sample_peak = seg.sample_peak.max(f64::from(peak));
-                seg.true_peak = seg.true_peak.max(true_peak);
-                state.invalid_sample_count += n as u64 - valid;
+                seg.true_peak = seg.true_peak.max(peaks.true_peak);
+                state.invalid_sample_count += peaks.invalid_samples;
+                let programme = &mut state.programme;
+                programme.max_sample_peak = programme.max_sample_peak.max(f64::from(peak));
+                programme.max_true_peak = programme.max_true_peak.max(peaks.true_peak);
+                programme.valid_samples += valid;
+                programme.invalid_samples += peaks.invalid_samples;
                 state.current_fill += n;
                 offset += n;
                 if state.current_fill == self.segment_len {
-                    finish_segment(state, self.segment_s, self.config.peak_hold_s);
+                    finish_segment(
+                        state,
+                        &self.dc_weights,
+                        self.segment_s,
+                        self.config.peak_hold_s,
+                    );
                 }
             }
         }
@@ -366,14 +613,37 @@ impl ChannelMeters {
             true_peak_hold_dbtp: amplitude_to_db(state.true_peak_hold.value),
             max_sample_peak_dbfs: amplitude_to_db(state.max_sample_peak),
             max_true_peak_dbtp: amplitude_to_db(state.max_true_peak),
-            clip_count: state.clip_count,
+            clip_count: state.clips.count,
+            longest_clip_run: state.clips.longest_run,
             invalid_sample_count: state.invalid_sample_count,
             dc_offset: if window.valid_count == 0 {
                 0.0
             } else {
-                window.sum / window.valid_count as f64
+                state.dc.second
             },
             over_omni: self.over_omni(channel),
+        })
+    }
+
+    /// Whole-programme totals of `channel` (see [`ProgrammeTotals`]), or `None` if there is no
+    /// such channel. Includes the segment in progress. Never allocates.
+    pub fn programme(&self, channel: usize) -> Option<ProgrammeTotals> {
+        let state = self.channels.get(channel)?;
+        let p = &state.programme;
+        let partial = state.lanes.totals();
+        let mut sum = p.sum;
+        sum.add(partial.sum);
+        let mut sum_squares = p.sum_squares;
+        sum_squares.add(partial.sum_squares);
+        Some(ProgrammeTotals {
+            max_sample_peak: p.max_sample_peak,
+            max_true_peak: p.max_true_peak,
+            sum: sum.value(),
+            sum_squares: sum_squares.value(),
+            valid_samples: p.valid_samples,
+            clip_count: p.clips.count,
+            longest_clip_run: p.clips.longest_run,
+            invalid_samples: p.invalid_samples,
         })
     }
 
@@ -412,15 +682,17 @@ impl ChannelMeters {
         }
     }
 
-    /// Clears clip and invalid-sample counts of every channel.
+    /// Clears the live clip counts (count and longest run) and invalid-sample counts of every
+    /// channel. The programme totals keep theirs.
     pub fn reset_clips(&mut self) {
         for state in &mut self.channels {
-            state.clip_count = 0;
+            state.clips = ClipCounter::default();
             state.invalid_sample_count = 0;
         }
     }
 
-    /// Clears peak holds and the since-reset maxima of every channel.
+    /// Clears peak holds and the since-reset maxima of every channel. The programme totals
+    /// keep theirs.
     pub fn reset_holds(&mut self) {
         for state in &mut self.channels {
             state.sample_hold = PeakHold::default();
@@ -430,11 +702,41 @@ impl ChannelMeters {
         }
     }
 
+    /// Starts new programme totals on every channel (the live meters carry on). Samples of the
+    /// segment in progress that came before this call are left out.
+    pub fn reset_programme(&mut self) {
+        for state in &mut self.channels {
+            let partial = state.lanes.totals();
+            state.programme = Programme {
+                // Cancels the partial sums, which the segment fold will add again.
+                sum: CompensatedSum::starting_at(-partial.sum),
+                sum_squares: CompensatedSum::starting_at(-partial.sum_squares),
+                ..Programme::default()
+            };
+        }
+    }
+
     /// Returns every channel to its state after construction.
     pub fn reset(&mut self) {
         for state in &mut self.channels {
             *state = ChannelState::new(state.ring.len());
         }
+    }
+}
+
+/// Counts the samples of `piece` at full scale. Clips are rare: the piece is scanned only when
+/// its peak (of finite samples) reaches `high` (≤ 1 ≤ −`low`); otherwise any run ends here.
+#[inline]
+fn count_clips(state: &mut ChannelState, piece: &[f32], peak: f32, high: f32, low: f32) {
+    if peak >= high {
+        for &x in piece {
+            let at_full_scale = x.is_finite() && (x >= high || x <= low);
+            state.clips.sample(at_full_scale);
+            state.programme.clips.sample(at_full_scale);
+        }
+    } else if !piece.is_empty() {
+        state.clips.run = 0;
+        state.programme.clips.run = 0;
     }
 }
 
@@ -447,53 +749,132 @@ const SUM_LANES: usize = 4;
 struct SegmentLanes {
     sum_squares: [f64; SUM_LANES],
     sum: [f64; SUM_LANES],
+    /// Weighted sums for the DC filter (see [`DcWeights`]).
+    dc_first: [f64; SUM_LANES],
+    dc_second: [f64; SUM_LANES],
+}
+
+/// The lanes of a [`SegmentLanes`] added up.
+#[derive(Debug, Clone, Copy)]
+struct LaneTotals {
+    sum_squares: f64,
+    sum: f64,
+    dc_first: f64,
+    dc_second: f64,
 }
 
 impl SegmentLanes {
+    #[inline(always)]
+    fn accumulate(&mut self, lane: usize, x: f64, first_weight: f64, second_weight: f64) {
+        self.sum_squares[lane] += x * x;
+        self.sum[lane] += x;
+        self.dc_first[lane] += first_weight * x;
+        self.dc_second[lane] += second_weight * x;
+    }
+
     /// Adds `samples`, the first at position `position` of the segment. Non-finite samples
-    /// add 0 (pass `all_finite = true` only when there are none).
-    fn add(&mut self, samples: &[f32], position: usize, all_finite: bool) {
-        let clean = |x: f32| {
-            if all_finite || x.is_finite() {
-                f64::from(x)
-            } else {
-                0.0
+    /// add 0 (pass `all_finite = true` only when there are none). At most [`CHUNK`] samples.
+    fn add(&mut self, samples: &[f32], position: usize, all_finite: bool, dc: &DcWeights) {
+        let mut clean = [0.0f32; CHUNK];
+        let samples = if all_finite {
+            samples
+        } else {
+            let clean = &mut clean[..samples.len()];
+            for (c, &x) in clean.iter_mut().zip(samples) {
+                *c = if x.is_finite() { x } else { 0.0 };
             }
+            &*clean
         };
-        let head = (SUM_LANES - position % SUM_LANES) % SUM_LANES;
-        let head = head.min(samples.len());
-        for (i, &x) in samples[..head].iter().enumerate() {
-            let lane = (position + i) % SUM_LANES;
-            let x = clean(x);
-            self.sum_squares[lane] += x * x;
-            self.sum[lane] += x;
+        let end = position + samples.len();
+        let (first, second) = (&dc.first[position..end], &dc.second[position..end]);
+        let head = ((SUM_LANES - position % SUM_LANES) % SUM_LANES).min(samples.len());
+        let grouped = (samples.len() - head) / SUM_LANES * SUM_LANES;
+        // Head, groups, tail: each lane adds its samples in position order.
+        for i in 0..head {
+            self.accumulate(
+                (position + i) % SUM_LANES,
+                f64::from(samples[i]),
+                first[i],
+                second[i],
+            );
         }
-        let mut groups = samples[head..].chunks_exact(SUM_LANES);
-        for group in &mut groups {
-            for (lane, &x) in group.iter().enumerate() {
-                let x = clean(x);
-                self.sum_squares[lane] += x * x;
-                self.sum[lane] += x;
-            }
-        }
-        for (lane, &x) in groups.remainder().iter().enumerate() {
-            let x = clean(x);
-            self.sum_squares[lane] += x * x;
-            self.sum[lane] += x;
+        let range = head..head + grouped;
+        add_groups(
+            self,
+            &samples[range.clone()],
+            &first[range.clone()],
+            &second[range],
+        );
+        for i in head + grouped..samples.len() {
+            self.accumulate(
+                (position + i) % SUM_LANES,
+                f64::from(samples[i]),
+                first[i],
+                second[i],
+            );
         }
     }
 
-    /// Folds the lanes into `segment` (fixed order) and clears them.
-    fn fold_into(&mut self, segment: &mut Segment) {
-        segment.sum_squares = (self.sum_squares[0] + self.sum_squares[1])
-            + (self.sum_squares[2] + self.sum_squares[3]);
-        segment.sum = (self.sum[0] + self.sum[1]) + (self.sum[2] + self.sum[3]);
-        *self = Self::default();
+    /// The lanes added up in a fixed order.
+    fn totals(&self) -> LaneTotals {
+        let fold = |l: &[f64; SUM_LANES]| (l[0] + l[1]) + (l[2] + l[3]);
+        LaneTotals {
+            sum_squares: fold(&self.sum_squares),
+            sum: fold(&self.sum),
+            dc_first: fold(&self.dc_first),
+            dc_second: fold(&self.dc_second),
+        }
     }
 }
 
-fn finish_segment(state: &mut ChannelState, segment_s: f64, hold_s: f64) {
-    state.lanes.fold_into(&mut state.current);
+/// Adds whole groups of [`SUM_LANES`] samples (the first in lane 0). Uses AVX where the CPU
+/// has it; both paths do the same multiplies and adds in the same order (no fused
+/// multiply-add), so the sums are bit-identical on every x86-64 machine.
+fn add_groups(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx") {
+            // SAFETY: the CPU supports AVX (checked just above).
+            return unsafe { add_groups_avx(lanes, samples, first, second) };
+        }
+    }
+    add_groups_portable(lanes, samples, first, second)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn add_groups_avx(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    add_groups_portable(lanes, samples, first, second)
+}
+
+/// The accumulators live in locals for the loop, so they stay in registers.
+#[inline(always)]
+fn add_groups_portable(lanes: &mut SegmentLanes, samples: &[f32], first: &[f64], second: &[f64]) {
+    let mut acc = *lanes;
+    let groups = samples
+        .chunks_exact(SUM_LANES)
+        .zip(first.chunks_exact(SUM_LANES))
+        .zip(second.chunks_exact(SUM_LANES));
+    for ((xs, w1), w2) in groups {
+        for lane in 0..SUM_LANES {
+            let x = f64::from(xs[lane]);
+            acc.sum_squares[lane] += x * x;
+            acc.sum[lane] += x;
+            acc.dc_first[lane] += w1[lane] * x;
+            acc.dc_second[lane] += w2[lane] * x;
+        }
+    }
+    *lanes = acc;
+}
+
+fn finish_segment(state: &mut ChannelState, dc: &DcWeights, segment_s: f64, hold_s: f64) {
+    let totals = state.lanes.totals();
+    state.lanes = SegmentLanes::default();
+    state.current.sum_squares = totals.sum_squares;
+    state.current.sum = totals.sum;
+    dc.advance(&mut state.dc, totals.dc_first, totals.dc_second);
+    state.programme.sum.add(totals.sum);
+    state.programme.sum_squares.add(totals.sum_squares);
     let segment = state.current;
     let window_len = state.ring.len();
     state.ring[state.ring_next] = segment;

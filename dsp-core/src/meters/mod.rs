@@ -3,9 +3,11 @@
 //! - [`TruePeakMeter`]: ITU-R BS.1770-4 Annex 2 true peak (4× oversampling with the
 //!   Recommendation's 48-tap, 4-phase FIR), streaming across blocks.
 //! - [`ChannelMeters`]: a strip of meters for every channel of a stream — sample peak, true
-//!   peak, RMS, DC offset over a short sliding window, peak holds, clip and invalid-sample
-//!   counts, and the over-omni flag (a channel louder than W, ACN 0, by more than a tolerance).
-//!   [`ChannelReading`] is the plain-data snapshot of one channel.
+//!   peak and RMS over a short sliding window, a slow DC offset (two cascaded 1 s low-passes),
+//!   peak holds, clip counts (either sign, per [`FullScale`]) with the longest run of clipped
+//!   samples, invalid-sample counts, and the over-omni flag (a channel louder than W, ACN 0, by
+//!   more than a tolerance). [`ChannelReading`] is the plain-data snapshot of one channel;
+//!   [`ProgrammeTotals`] the whole-programme totals that no hold or clip reset clears.
 //!
 //! Construction allocates; `push` never does. These run on the analysis thread.
 //!
@@ -15,7 +17,10 @@
 mod channel;
 mod true_peak;
 
-pub use channel::{ChannelMeterConfig, ChannelMeters, ChannelReading, MeterError};
+pub use channel::{
+    ChannelMeterConfig, ChannelMeters, ChannelReading, DC_SETTLE_S, DC_TIME_CONSTANT_S, FullScale,
+    MeterError, ProgrammeTotals,
+};
 pub use true_peak::{TRUE_PEAK_OVERSAMPLING, TRUE_PEAK_PHASES, TruePeakMeter};
 
 /// Floor of every dB reading (digital silence reads this instead of −∞).
