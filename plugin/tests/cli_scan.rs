@@ -380,6 +380,64 @@ fn clipped_samples_are_counted_and_fail_on_exits_3() {
 }
 
 #[test]
+fn integer_pcm_clips_count_on_both_sides_with_the_longest_run() {
+    // Integer PCM cannot reach +1.0: the highest 24-bit code reads 1 − 2⁻²³ (code / 2²³, the
+    // usual reading of WAV PCM — common practice). A signal driven past full scale is stored at
+    // either extreme code; both count. 100 samples at each extreme, the longest run 7.
+    let dir = tmp();
+    let mut planes = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[(Direction::new(30.0, 20.0), 0.2)],
+        RATE as usize / 2,
+    );
+    let mut k = 1000;
+    for run in 0..40 {
+        let length = if run == 0 { 7 } else { 5 + (run % 2) };
+        let level = if run % 2 == 0 { 1.7f32 } else { -1.3 };
+        for _ in 0..length {
+            planes[1][k] = level;
+            k += 1;
+        }
+        k += 300;
+    }
+    // Runs of 7 + 19·5 positive and 20·6 negative samples: trimmed to exactly 100 per sign.
+    let (mut positive, mut negative) = (0, 0);
+    for v in planes[1].iter_mut() {
+        if *v >= 1.0 {
+            positive += 1;
+            if positive > 100 {
+                *v = 0.5;
+            }
+        } else if *v <= -1.0 {
+            negative += 1;
+            if negative > 100 {
+                *v = -0.5;
+            }
+        }
+    }
+    assert!(positive >= 100 && negative >= 100);
+    let path = dir.path().join("clipped-24.wav");
+    write_wav(
+        &path,
+        spec(4, 24, SampleFormat::Int),
+        WriterOptions::default(),
+        &planes,
+    );
+    let doc = scan_json(&path, &[]);
+    assert_eq!(doc["channels"][1]["clipped_samples"], 200, "{}", doc["channels"][1]);
+    assert_eq!(doc["channels"][1]["longest_clip_run"], 7);
+    assert_eq!(doc["channels"][0]["clipped_samples"], 0);
+    let clip = doc["findings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["code"] == "clipping")
+        .expect("clipping finding");
+    assert_eq!(clip["channels"], serde_json::json!([1]));
+}
+
+#[test]
 fn silent_channel_is_reported() {
     let dir = tmp();
     let mut planes = encode(

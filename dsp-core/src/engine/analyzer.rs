@@ -16,7 +16,7 @@ use crate::covariance::{BAND_COUNT, BandCovariance};
 use crate::format::{ConversionPlan, FormatError};
 use crate::format_check::{FormatCheckInput, FormatChecker};
 use crate::loudness::LoudnessMeter;
-use crate::meters::{ChannelMeterConfig, ChannelMeters, LEVEL_FLOOR_DB};
+use crate::meters::{ChannelMeterConfig, ChannelMeters, FullScale, LEVEL_FLOOR_DB};
 use crate::sh::order_degree;
 use crate::sphere::Direction;
 use crate::sphere::grid::EquirectGrid;
@@ -67,14 +67,6 @@ impl From<FormatError> for EngineError {
     }
 }
 
-/// Whole-programme accumulators per input channel (for reports).
-#[derive(Clone, Debug, Default)]
-struct ProgrammeSums {
-    sum: Vec<f64>,
-    sum_squares: Vec<f64>,
-    frames: u64,
-}
-
 /// The analysis. Construction allocates everything; [`process`](Self::process) allocates only
 /// when a snapshot is produced (map buffers on first use, finding messages).
 pub struct Analyzer {
@@ -99,7 +91,8 @@ pub struct Analyzer {
     checker: FormatChecker,
     w_scratch: Vec<f32>,
     r_sn3d: Vec<f64>,
-    programme: ProgrammeSums,
+    /// Audio frames analysed since the start or the last programme reset.
+    programme_frames: u64,
     snapshot: Snapshot,
     sequence: u64,
     time_s: f64,
@@ -157,11 +150,7 @@ impl Analyzer {
             checker,
             w_scratch: Vec::new(),
             r_sn3d: vec![0.0; m * m],
-            programme: ProgrammeSums {
-                sum: vec![0.0; setup.channels],
-                sum_squares: vec![0.0; setup.channels],
-                frames: 0,
-            },
+            programme_frames: 0,
             snapshot: Snapshot {
                 sample_rate_hz: setup.sample_rate_hz,
                 order: layout.order,
@@ -279,11 +268,8 @@ impl Analyzer {
         }
         self.integrated_frames = [0; BAND_COUNT];
         self.diffuseness.reset();
-        self.programme = ProgrammeSums {
-            sum: vec![0.0; self.setup.channels],
-            sum_squares: vec![0.0; self.setup.channels],
-            frames: 0,
-        };
+        self.meters.reset_programme();
+        self.programme_frames = 0;
         self.snapshot.format_check = Default::default();
         self.frames_since_check = usize::MAX / 2;
     }
@@ -302,7 +288,7 @@ impl Analyzer {
             return false;
         }
         self.meters.push(block);
-        self.accumulate_programme(block, frames);
+        self.programme_frames += frames as u64;
         self.measure_w(block, frames);
 
         let m = self.layout.spatial_channels;
@@ -375,20 +361,6 @@ impl Analyzer {
         let hop = self.covariance.framing().hop as f64;
         let tau_s = self.settings.time_constant_ms.max(1.0) / 1000.0;
         (-hop / (tau_s * self.setup.sample_rate_hz)).exp()
-    }
-
-    fn accumulate_programme(&mut self, block: &[&[f32]], frames: usize) {
-        for (c, samples) in block.iter().enumerate().take(self.setup.channels) {
-            let (mut s, mut s2) = (0.0f64, 0.0f64);
-            for &x in samples.iter() {
-                let x = if x.is_finite() { f64::from(x) } else { 0.0 };
-                s += x;
-                s2 += x * x;
-            }
-            self.programme.sum[c] += s;
-            self.programme.sum_squares[c] += s2;
-        }
-        self.programme.frames += frames as u64;
     }
 
     fn measure_w(&mut self, block: &[&[f32]], frames: usize) {
@@ -566,7 +538,6 @@ impl Analyzer {
         let m = self.layout.spatial_channels;
         let tolerance = self.settings.over_omni_tolerance_db;
         let mean_square = self.programme_mean_square();
-        let mean = self.programme_mean();
         let mut acn_of_input = [usize::MAX; 64];
         for acn in 0..m {
             acn_of_input[self.conversion.source_channel(acn)] = acn;
@@ -585,7 +556,7 @@ impl Analyzer {
         let w_active = w_sn3d >= SILENT_MEAN_SQUARE;
         let channels: Vec<ChannelProgramme> = (0..self.setup.channels)
             .map(|c| {
-                let reading = self.meters.reading(c).unwrap_or_default();
+                let totals = self.meters.programme(c).unwrap_or_default();
                 let acn = acn_of(c);
                 let sn3d = sn3d_mean_square(c);
                 ChannelProgramme {
@@ -593,14 +564,14 @@ impl Analyzer {
                     acn,
                     order: acn.map(|a| order_degree(a).0),
                     degree: acn.map(|a| order_degree(a).1),
-                    sample_peak_dbfs: reading.max_sample_peak_dbfs,
-                    true_peak_dbtp: reading.max_true_peak_dbtp,
+                    sample_peak_dbfs: totals.sample_peak_dbfs(),
+                    true_peak_dbtp: totals.true_peak_dbtp(),
                     rms_dbfs: mean_square_db(mean_square[c]),
                     sn3d_rms_dbfs: mean_square_db(sn3d),
-                    clip_count: reading.clip_count,
-                    longest_clip_run: 0,
-                    invalid_samples: reading.invalid_sample_count,
-                    dc_offset: mean[c],
+                    clip_count: totals.clip_count,
+                    longest_clip_run: totals.longest_clip_run,
+                    invalid_samples: totals.invalid_samples,
+                    dc_offset: totals.mean(),
                     over_omni: acn.is_some_and(|a| a != 0)
                         && w_active
                         && mean_square_db(sn3d) > mean_square_db(w_sn3d) + tolerance,
@@ -610,11 +581,11 @@ impl Analyzer {
             })
             .collect();
         let w_gain_db = 20.0 * self.conversion.gain(0).abs().log10();
-        let w = self.meters.reading(w_input).unwrap_or_default();
+        let w = self.meters.programme(w_input).unwrap_or_default();
         let omni = OmniProgramme {
             conversion_gain_db: w_gain_db,
-            sample_peak_dbfs: w.max_sample_peak_dbfs + w_gain_db,
-            true_peak_dbtp: w.max_true_peak_dbtp + w_gain_db,
+            sample_peak_dbfs: w.sample_peak_dbfs() + w_gain_db,
+            true_peak_dbtp: w.true_peak_dbtp() + w_gain_db,
             rms_dbfs: mean_square_db(w_sn3d),
             integrated_lufs: self.loudness.integrated_lufs(),
             max_momentary_lufs: self.loudness.max_momentary_lufs(),
@@ -622,7 +593,7 @@ impl Analyzer {
         };
         let check = &self.snapshot.format_check;
         let mut summary = ProgrammeSummary {
-            duration_s: self.programme.frames as f64 / self.setup.sample_rate_hz,
+            duration_s: self.programme_frames as f64 / self.setup.sample_rate_hz,
             channels,
             order_balance_db: check.order_balance_db.clone(),
             effective_order: check.effective_order,
@@ -643,6 +614,7 @@ impl Analyzer {
             .map(|c| {
                 let mut reading = self.meters.reading(c.input_index).unwrap_or_default();
                 reading.clip_count = c.clip_count;
+                reading.longest_clip_run = c.longest_clip_run;
                 reading.invalid_sample_count = c.invalid_samples;
                 reading.dc_offset = c.dc_offset;
                 reading.over_omni = c.over_omni;
@@ -679,16 +651,27 @@ impl Analyzer {
         findings
     }
 
-    /// Mean square of every input channel over the whole programme.
+    /// Mean square of the valid samples of every input channel over the whole programme.
     pub fn programme_mean_square(&self) -> Vec<f64> {
-        let n = self.programme.frames.max(1) as f64;
-        self.programme.sum_squares.iter().map(|s| s / n).collect()
+        (0..self.setup.channels)
+            .map(|c| {
+                let t = self.meters.programme(c).unwrap_or_default();
+                t.sum_squares / t.valid_samples.max(1) as f64
+            })
+            .collect()
     }
 
-    /// Mean (DC) of every input channel over the whole programme.
-    pub fn programme_mean(&self) -> Vec<f64> {
-        let n = self.programme.frames.max(1) as f64;
-        self.programme.sum.iter().map(|s| s / n).collect()
+    /// Reads integer PCM of `bits` bits (or float): decides what counts as a sample at full
+    /// scale (either extreme code in integer PCM, |x| ≥ 1 in float). Call before the first
+    /// block; it restarts the meters.
+    pub fn set_full_scale(&mut self, full_scale: FullScale) -> Result<(), EngineError> {
+        let config = ChannelMeterConfig {
+            full_scale,
+            ..*self.meters.config()
+        };
+        self.meters = ChannelMeters::new(self.setup.channels, self.setup.sample_rate_hz, config)
+            .map_err(|e| EngineError::Settings(e.to_string()))?;
+        Ok(())
     }
 
     /// Whole-programme map of `band` with `method` (for reports); does not touch the snapshot.

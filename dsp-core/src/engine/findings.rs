@@ -49,11 +49,16 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
     let clipped = pick(&|s| s.reading.clip_count > 0);
     if !clipped.is_empty() {
         let total: u64 = status.iter().map(|s| s.reading.clip_count).sum();
+        let longest = status
+            .iter()
+            .map(|s| s.reading.longest_clip_run)
+            .max()
+            .unwrap_or(0);
         findings.push(Finding {
             severity: Severity::Error,
             code: FindingCode::Clipping,
             message: format!(
-                "{total} sample(s) at or beyond full scale on channel(s) {}",
+                "{total} sample(s) at full scale on channel(s) {} (longest run {longest})",
                 list(&clipped)
             ),
             channels: clipped,

@@ -13,6 +13,7 @@ use fieldglass_dsp::engine::{
 };
 use fieldglass_dsp::engine::{FindingCode, Severity};
 use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander, Normalization};
+use fieldglass_dsp::meters::FullScale;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
 use std::path::PathBuf;
@@ -118,6 +119,8 @@ pub struct InputInfo {
     pub mixed_order_set: Option<String>,
     /// What the reader had to repair (unfinalised or wrapped sizes), in plain words.
     pub warnings: Vec<String>,
+    /// What a sample at full scale is in this file's encoding.
+    pub full_scale: FullScale,
 }
 
 impl InputInfo {
@@ -295,6 +298,12 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
                 declares_b_format,
                 mixed_order_set,
                 warnings: reader.warnings().to_vec(),
+                full_scale: match spec.sample_format {
+                    SampleFormat::Int => FullScale::Integer {
+                        bits: spec.bits_per_sample,
+                    },
+                    SampleFormat::Float => FullScale::Float,
+                },
             };
             Ok((Source::File { reader, mixed }, info))
         }
@@ -327,6 +336,7 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
                 declares_b_format: false,
                 mixed_order_set: None,
                 warnings: Vec::new(),
+                full_scale: FullScale::Float,
             };
             Ok((
                 Source::Demo {
@@ -384,6 +394,9 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
         channels: analysed_channels,
     };
     let mut analyzer = Analyzer::new(setup, settings)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
+    analyzer
+        .set_full_scale(info.full_scale)
         .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
     if let Some(e) = &expander {
         analyzer.set_absent_channels(e.absent_channels());
