@@ -29,9 +29,6 @@ import sys
 from pathlib import Path
 
 import numpy as np
-from scipy.special import sph_harm
-
-import masp.shoebox_room_sim as srs
 
 # name, rate, order, room (m), source and receiver (masp corner coordinates, m), RT60 per octave
 # band 125 Hz .. 8 kHz (s), length kept (s).
@@ -48,7 +45,7 @@ BAND_CENTRES_HZ = np.array([125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0])
 
 def sn3d_table(order, x, y, z):
     """Real SN3D spherical harmonics, ACN order, no Condon-Shortley phase, up to order 3."""
-    values = [1.0,
+    values = [1.0 + 0.0 * x,  # W; broadcasts when x, y, z are arrays
               y, z, x,
               math.sqrt(3) * x * y, math.sqrt(3) * y * z, 0.5 * (3 * z * z - 1),
               math.sqrt(3) * x * z, 0.5 * math.sqrt(3) * (x * x - y * y),
@@ -61,6 +58,8 @@ def sn3d_table(order, x, y, z):
 
 def sn3d_scipy(order, azimuth, elevation):
     """The same from SciPy's complex orthonormal harmonics (CS phase removed, SN3D scaling)."""
+    from scipy.special import sph_harm  # removed in SciPy 1.17; imported only where used
+
     out = []
     polar = math.pi / 2 - elevation
     for n in range(order + 1):
@@ -88,6 +87,8 @@ def write_float_wav(path, rate, planes):
 
 
 def main(out_dir):
+    import masp.shoebox_room_sim as srs  # imported here so reference_peaks.py can reuse the table
+
     for name, rate, order, room, src, rec, rt60, seconds in ROOMS:
         room = np.array(room)
         src = np.array([src])
