@@ -46,7 +46,7 @@ use std::sync::OnceLock;
 /// map's 1° grid with sub-grid refinement puts a lone plane wave within a fraction of a degree
 /// (cli_scan.rs holds 3° for that); early reflections arriving within a beam width of the
 /// direct sound pull the peak by a few degrees more (the NumPy reference map of the same
-/// material peaks 2.8° and 3.6° off the direct path in the order-3 and order-2 rooms). 6° is
+/// material peaks 3.8° and 1.8° off the direct path in the order-3 and order-2 rooms). 6° is
 /// about the width of one talker's head seen from 2–3 m, so a reader would still point at the
 /// right person.
 const ROOM_TOLERANCE_DEG: f64 = 6.0;
@@ -55,7 +55,7 @@ const ROOM_TOLERANCE_DEG: f64 = 6.0;
 /// (windowed sinc here, SciPy's polyphase there), which differ slightly above 9.9 kHz.
 const REFERENCE_TOLERANCE_DEG: f64 = 2.0;
 /// The first-order room's talker is 3.6 m away, more than three times the room's critical
-/// distance (about 1 m): at first order the whole-file map is pulled about 11° off the direct
+/// distance (about 1 m): at first order the whole-file map is pulled about 10° off the direct
 /// path by the reflections (the NumPy reference agrees), so there only the reference is held,
 /// plus this bound on the strongest of two sources in a dry first-order mix (our own: half
 /// the 20° a first-order horizontal decoder is commonly allowed for localisation, from
@@ -102,7 +102,7 @@ static ROOM_O3_48K: Room = Room {
     order: 3,
     source: [4.2, 1.4, 1.7],
     receiver: [2.5, 2.6, 1.4],
-    reference_peak: (38.00, 8.50),
+    reference_peak: (38.75, 9.75),
 };
 /// 9 × 7 × 3.5 m, RT60 0.8–0.4 s; talker 3.6 m away, behind right, at ear height.
 static ROOM_O1_44K1: Room = Room {
@@ -111,7 +111,7 @@ static ROOM_O1_44K1: Room = Room {
     order: 1,
     source: [2.0, 5.0, 1.6],
     receiver: [5.0, 3.0, 1.5],
-    reference_peak: (-135.00, 2.75),
+    reference_peak: (-136.75, 3.00),
 };
 /// 4 × 3.5 × 2.6 m, RT60 0.35–0.2 s; talker 2.2 m away, behind right, 27° up.
 static ROOM_O2_96K: Room = Room {
@@ -120,7 +120,7 @@ static ROOM_O2_96K: Room = Room {
     order: 2,
     source: [1.2, 2.9, 2.2],
     receiver: [2.6, 1.5, 1.2],
-    reference_peak: (-137.25, 23.75),
+    reference_peak: (-136.00, 25.25),
 };
 static ROOMS: [&Room; 3] = [&ROOM_O3_48K, &ROOM_O1_44K1, &ROOM_O2_96K];
 
@@ -135,14 +135,25 @@ fn read_planes(path: &Path) -> (u32, Vec<Vec<f32>>) {
     (spec.sample_rate, planes)
 }
 
-/// The espeak-ng speech at `rate`.
-fn speech(rate: u32) -> Vec<f32> {
+/// The first 6 s of the espeak-ng speech (two phrases and both pauses of digital silence; the
+/// third phrase would only lengthen the run), at `rate` (44.1, 48 or 96 kHz). Cached.
+fn speech(rate: u32) -> &'static [f32] {
+    const SECONDS: f64 = 6.0; // as in reference_peaks.py
     static NATIVE: OnceLock<(u32, Vec<f32>)> = OnceLock::new();
-    let (native_rate, native) = NATIVE.get_or_init(|| {
-        let (rate, mut planes) = read_planes(&data_dir().join("speech.wav"));
-        (rate, planes.remove(0))
-    });
-    resample(native, *native_rate, rate)
+    static AT_RATE: [OnceLock<Vec<f32>>; 3] = [OnceLock::new(), OnceLock::new(), OnceLock::new()];
+    let slot = [44_100, 48_000, 96_000]
+        .iter()
+        .position(|&r| r == rate)
+        .unwrap_or_else(|| panic!("no speech at {rate} Hz"));
+    AT_RATE[slot].get_or_init(|| {
+        let (native_rate, native) = NATIVE.get_or_init(|| {
+            let (native_rate, mut planes) = read_planes(&data_dir().join("speech.wav"));
+            let mut voice = planes.remove(0);
+            voice.truncate((SECONDS * native_rate as f64) as usize);
+            (native_rate, voice)
+        });
+        resample(native, *native_rate, rate)
+    })
 }
 
 /// Speech through a room: the room's SN3D impulse responses, high-passed at 20 Hz, convolved
@@ -165,7 +176,7 @@ fn room_speech(room: &'static Room) -> &'static [Vec<f32>] {
         for rir in &mut rirs {
             *rir = high_pass(rir, rate, 20.0);
         }
-        let mut planes = convolve_all(&speech(rate), &rirs);
+        let mut planes = convolve_all(speech(rate), &rirs);
         let gain = 0.5 / peak(&planes[0]);
         scale(&mut planes, gain);
         // The material itself: no channel near full scale, no mean within 10 dB of the
@@ -776,6 +787,14 @@ fn check_room_is_clean(room: &'static Room, storage: Storage, direct_path_deg: O
     checks.clean(&doc);
     checks.format(&doc, "acn", "sn3d", room.order);
     checks.effective_order(&doc, room.order);
+    let strongest = doc["sources"].get(0).map(|s| show(source_direction(s)));
+    eprintln!(
+        "{}: strongest source {strongest:?}, direct path {}, reference peak {:?}; detected {}",
+        room.file,
+        show(room.direct_path()),
+        room.reference_peak,
+        doc["detected"]
+    );
     let (az, el) = room.reference_peak;
     checks.strongest(
         &doc["sources"],
@@ -817,7 +836,7 @@ fn dry_speech_plane_wave_pcm16_with_digital_silence_is_clean() {
     let mut checks = Checks::new("dry speech, pcm16 without dither");
     for order in [1, 3] {
         checks.on(format!("order {order}"));
-        let planes = encode(order, AmbiFormat::ACN_SN3D, &[(&voice, talker, 0.9)]);
+        let planes = encode(order, AmbiFormat::ACN_SN3D, &[(voice, talker, 0.9)]);
         let (written, doc) = write_and_scan(
             dir.path(),
             &format!("dry{order}"),
@@ -843,7 +862,7 @@ fn horizontal_mix(order: usize, rate: u32) -> (Vec<Vec<f32>>, [Direction; 2]) {
     let truths = [Direction::new(30.0, 0.0), Direction::new(-70.0, 0.0)];
     let beds: Vec<Vec<f32>> = (0..8).map(|k| noise(100 + k, frames)).collect();
     let mut sources: Vec<(&[f32], Direction, f32)> =
-        vec![(&voice, truths[0], 0.8), (&pluck, truths[1], 0.5)];
+        vec![(voice, truths[0], 0.8), (&pluck, truths[1], 0.5)];
     for (k, bed) in beds.iter().enumerate() {
         sources.push((bed, Direction::new(22.5 + 45.0 * k as f64, 0.0), 0.01));
     }
@@ -1061,7 +1080,7 @@ fn content_above_4khz_only_in_the_higher_orders_is_clean() {
     let hiss = band_noise(rate, voice.len(), 5_000.0, 12_000.0, 17);
     let talker = Direction::new(40.0, 10.0);
     let high = Direction::new(-100.0, 30.0);
-    let first = encode(1, AmbiFormat::ACN_SN3D, &[(&voice, talker, 0.8)]);
+    let first = encode(1, AmbiFormat::ACN_SN3D, &[(voice, talker, 0.8)]);
     let mut planes = encode(3, AmbiFormat::ACN_SN3D, &[(&hiss, high, 0.1)]);
     for (p, s) in planes.iter_mut().zip(&first) {
         p.iter_mut().zip(s).for_each(|(a, b)| *a += b);
@@ -1300,7 +1319,7 @@ fn a_format_capsules_from_a_room_are_suspected_at_any_level() {
     let close = encode(
         1,
         AmbiFormat::ACN_SN3D,
-        &[(&voice, Direction::new(10.0, -5.0), 0.9)],
+        &[(voice, Direction::new(10.0, -5.0), 0.9)],
     );
     checks.on("a close dry talker as B-format");
     let (_, doc) = write_and_scan(dir.path(), "close", 44_100, Storage::Pcm(24), &close, &[]);

@@ -2,7 +2,7 @@
 """Reference directions for `plugin/tests/real_material.rs`: the peak of the whole-file,
 full-band max-rE power map of speech.wav played in each room, computed with NumPy/SciPy.
 
-The material is built as the test builds it: each room response high-passed at 20 Hz (first
+The material is built as the test builds it: the first 6 s of the speech, each room response high-passed at 20 Hz (first
 order), the speech resampled to the room's rate (here with SciPy's polyphase resampler, in the
 test with a windowed-sinc one), convolved, and the map p(d) = (w*y(d))' R (w*y(d)) evaluated on a
 0.25 degree grid, with R the broadband covariance of the SN3D channels (equal to the sum over
@@ -28,6 +28,7 @@ from scipy.signal import fftconvolve, lfilter, resample_poly
 sys.path.insert(0, str(Path(__file__).parent))
 from make_rooms import sn3d_table  # noqa: E402  (plain function, no simulator import needed)
 
+SPEECH_SECONDS = 6.0  # the test uses the first two phrases only
 ROOMS = [("room_o3_48k.wav", 48000, 3), ("room_o1_44k1.wav", 44100, 1),
          ("room_o2_96k.wav", 96000, 2)]
 
@@ -50,6 +51,7 @@ def main(folder):
     with wave.open(str(folder / "speech.wav")) as w:
         speech_rate = w.getframerate()
         speech = np.frombuffer(w.readframes(w.getnframes()), "<i2") / 32768.0
+    speech = speech[: int(SPEECH_SECONDS * speech_rate)]
     for name, rate, order in ROOMS:
         rirs = read_float_wav(folder / name)
         a = 1.0 / (1.0 + 2.0 * math.pi * 20.0 / rate)
