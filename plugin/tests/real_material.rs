@@ -47,8 +47,8 @@ use std::sync::OnceLock;
 /// (cli_scan.rs holds 3° for that); early reflections arriving within a beam width of the
 /// direct sound pull the peak by a few degrees more (the NumPy reference map of the same
 /// material peaks 3.8° and 1.8° off the direct path in the order-3 and order-2 rooms). 6° is
-/// about the width of one talker's head seen from 2–3 m, so a reader would still point at the
-/// right person.
+/// half the angle a person's shoulders (about 0.45 m) span from 2 m: the marker still lands on
+/// the talker.
 const ROOM_TOLERANCE_DEG: f64 = 6.0;
 /// Against the NumPy reference peak of the same map: our own bound for the engine's 1° grid
 /// with sub-grid refinement against the reference's 0.25° grid, and the two resamplers
@@ -56,10 +56,9 @@ const ROOM_TOLERANCE_DEG: f64 = 6.0;
 const REFERENCE_TOLERANCE_DEG: f64 = 2.0;
 /// The first-order room's talker is 3.6 m away, more than three times the room's critical
 /// distance (about 1 m): at first order the whole-file map is pulled about 10° off the direct
-/// path by the reflections (the NumPy reference agrees), so there only the reference is held,
-/// plus this bound on the strongest of two sources in a dry first-order mix (our own: half
-/// the 20° a first-order horizontal decoder is commonly allowed for localisation, from
-/// memory).
+/// path by the reflections (the NumPy reference agrees), so there only the reference is held.
+/// This bound is for first-order material where the direct sound dominates: our own, about a
+/// tenth of the first-order max-rE beam's −3 dB width (115°, from the pattern 1 + √3·cos θ).
 const FIRST_ORDER_TOLERANCE_DEG: f64 = 10.0;
 /// Dry plane waves, mixed in a file: as in cli_scan.rs (1° grid, sub-grid refinement).
 const DRY_TOLERANCE_DEG: f64 = 3.0;
@@ -162,7 +161,8 @@ fn speech(rate: u32) -> &'static [f32] {
 ///
 /// The high-pass: an image-source model adds one positive pulse per image, so its W response
 /// has a large gain at 0 Hz (44 to 90 here), which no microphone has; with the speech's own
-/// −66 dBFS mean it would put a real DC offset of about −45 dBFS on W. A first-order 20 Hz
+/// −66 dBFS mean it put a real DC offset above −50 dBFS on W (the scan rightly reported it in
+/// all three rooms before this filter was added). A first-order 20 Hz
 /// high-pass, as a measurement microphone's and preamplifier's roll-off, removes it; the same
 /// filter on every channel keeps the directions.
 fn room_speech(room: &'static Room) -> &'static [Vec<f32>] {
