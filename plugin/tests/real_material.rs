@@ -50,10 +50,13 @@ use std::sync::OnceLock;
 /// half the angle a person's shoulders (about 0.45 m) span from 2 m: the marker still lands on
 /// the talker.
 const ROOM_TOLERANCE_DEG: f64 = 6.0;
-/// Against the NumPy reference peak of the same map: our own bound for the engine's 1° grid
-/// with sub-grid refinement against the reference's 0.25° grid, and the two resamplers
-/// (windowed sinc here, SciPy's polyphase there), which differ slightly above 9.9 kHz.
-const REFERENCE_TOLERANCE_DEG: f64 = 2.0;
+/// Against the NumPy reference peak of the same map, added to the room's
+/// `reference_flat_deg`: the engine's 1° grid step (our own bound). A power map of a room is
+/// very flat on top (within 0.01 dB over 3–7° here), so directions inside that radius are
+/// equally good answers; a 0.01 dB difference is our own bound for what the two pipelines
+/// (the engine's STFT covariance against a broadband one, a windowed-sinc against a polyphase
+/// resampler, rounding) may move.
+const REFERENCE_GRID_DEG: f64 = 1.0;
 /// The first-order room's talker is 3.6 m away, more than three times the room's critical
 /// distance (about 1 m): at first order the whole-file map is pulled about 10° off the direct
 /// path by the reflections (the NumPy reference agrees), so there only the reference is held.
@@ -82,6 +85,9 @@ struct Room {
     /// Peak of the whole-file full-band max-rE map of this room's speech, computed with
     /// NumPy/SciPy by `reference_peaks.py` (azimuth, elevation in degrees).
     reference_peak: (f64, f64),
+    /// How flat that map's top is: the farthest direction from the peak where the reference
+    /// map is still within 0.01 dB of its maximum (degrees, from `reference_peaks.py`).
+    reference_flat_deg: f64,
 }
 
 impl Room {
@@ -102,6 +108,7 @@ static ROOM_O3_48K: Room = Room {
     source: [4.2, 1.4, 1.7],
     receiver: [2.5, 2.6, 1.4],
     reference_peak: (38.75, 9.75),
+    reference_flat_deg: 3.01,
 };
 /// 9 × 7 × 3.5 m, RT60 0.8–0.4 s; talker 3.6 m away, behind right, at ear height.
 static ROOM_O1_44K1: Room = Room {
@@ -111,6 +118,7 @@ static ROOM_O1_44K1: Room = Room {
     source: [2.0, 5.0, 1.6],
     receiver: [5.0, 3.0, 1.5],
     reference_peak: (-136.75, 3.00),
+    reference_flat_deg: 7.03,
 };
 /// 4 × 3.5 × 2.6 m, RT60 0.35–0.2 s; talker 2.2 m away, behind right, 27° up.
 static ROOM_O2_96K: Room = Room {
@@ -120,6 +128,7 @@ static ROOM_O2_96K: Room = Room {
     source: [1.2, 2.9, 2.2],
     receiver: [2.6, 1.5, 1.2],
     reference_peak: (-136.00, 25.25),
+    reference_flat_deg: 3.90,
 };
 static ROOMS: [&Room; 3] = [&ROOM_O3_48K, &ROOM_O1_44K1, &ROOM_O2_96K];
 
@@ -796,11 +805,8 @@ fn check_room_is_clean(room: &'static Room, storage: Storage, direct_path_deg: O
         doc["detected"]
     );
     let (az, el) = room.reference_peak;
-    checks.strongest(
-        &doc["sources"],
-        Direction::new(az, el),
-        REFERENCE_TOLERANCE_DEG,
-    );
+    let tolerance = room.reference_flat_deg + REFERENCE_GRID_DEG;
+    checks.strongest(&doc["sources"], Direction::new(az, el), tolerance);
     if let Some(tolerance) = direct_path_deg {
         checks.strongest(&doc["sources"], room.direct_path(), tolerance);
     }

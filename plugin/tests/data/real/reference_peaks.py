@@ -8,6 +8,7 @@ test with a windowed-sinc one), convolved, and the map p(d) = (w*y(d))' R (w*y(d
 0.25 degree grid, with R the broadband covariance of the SN3D channels (equal to the sum over
 all frequency bins of the real cross-spectra), y the SN3D harmonics (table in make_rooms.py) and
 w_n = P_n(r_E), r_E the largest root of the Legendre polynomial P_(N+1) (max-rE weights).
+It prints the peak and how far from it the map stays within 0.01 dB of its maximum.
 
     python3 plugin/tests/data/real/reference_peaks.py plugin/tests/data/real
 
@@ -28,6 +29,7 @@ from scipy.signal import fftconvolve, lfilter, resample_poly
 sys.path.insert(0, str(Path(__file__).parent))
 from make_rooms import sn3d_table  # noqa: E402  (plain function, no simulator import needed)
 
+FLAT_DB = 0.01  # how flat the top is: see the note in main()
 SPEECH_SECONDS = 6.0  # the test uses the first two phrases only
 ROOMS = [("room_o3_48k.wav", 48000, 3), ("room_o1_44k1.wav", 44100, 1),
          ("room_o2_96k.wav", 96000, 2)]
@@ -61,19 +63,27 @@ def main(folder):
         sig = np.stack([fftconvolve(voice, rirs[:, c]) for c in range(rirs.shape[1])], 1)
         cov = sig.T @ sig
         weights = max_re_weights(order)
-        best = (-1.0, 0.0, 0.0)
+        rows = []  # per elevation: the map along azimuth
         azimuths = np.radians(np.arange(-179.75, 180.001, 0.25))
-        for el in np.arange(-90.0, 90.001, 0.25):
+        elevations = np.arange(-90.0, 90.001, 0.25)
+        for el in elevations:
             e = math.radians(el)
             y = sn3d_table(order, math.cos(e) * np.cos(azimuths), math.cos(e) * np.sin(azimuths),
                            math.sin(e) + 0.0 * azimuths) * weights[:, None]
-            p = np.einsum("ia,ij,ja->a", y, cov, y)
-            k = int(np.argmax(p))
-            if p[k] > best[0]:
-                best = (p[k], math.degrees(azimuths[k]), el)
-        print(f"{name}: max-rE full-band map peak at azimuth {best[1]:.2f} deg, "
-              f"elevation {best[2]:.2f} deg")
-
+            rows.append(np.einsum("ia,ij,ja->a", y, cov, y))
+        level_db = 10.0 * np.log10(np.array(rows))
+        row, col = np.unravel_index(np.argmax(level_db), level_db.shape)
+        peak_el, peak_az = elevations[row], math.degrees(azimuths[col])
+        # How flat the top is: the farthest grid point from the peak whose level is within
+        # FLAT_DB of the maximum. Directions inside this radius differ by less than FLAT_DB.
+        e0, a0 = math.radians(peak_el), math.radians(peak_az)
+        near = level_db >= level_db[row, col] - FLAT_DB
+        el_grid = np.radians(elevations)[:, None]
+        cos_angle = (np.sin(el_grid) * math.sin(e0)
+                     + np.cos(el_grid) * math.cos(e0) * np.cos(azimuths[None, :] - a0))
+        radius = math.degrees(np.arccos(np.clip(cos_angle[near], -1.0, 1.0)).max())
+        print(f"{name}: max-rE full-band map peak at azimuth {peak_az:.2f} deg, elevation "
+              f"{peak_el:.2f} deg; within {FLAT_DB} dB of it up to {radius:.2f} deg away")
 
 if __name__ == "__main__":
     main(Path(sys.argv[1]))
