@@ -63,6 +63,9 @@ const REFERENCE_GRID_DEG: f64 = 1.0;
 /// This bound is for first-order material where the direct sound dominates: our own, about a
 /// tenth of the first-order max-rE beam's −3 dB width (115°, from the pattern 1 + √3·cos θ).
 const FIRST_ORDER_TOLERANCE_DEG: f64 = 10.0;
+/// Integrated loudness of 0.9 × the speech at 48 kHz (the dry talker's W), from pyloudnorm
+/// 0.2.0 by `reference_loudness.py`.
+const DRY_SPEECH_W_LUFS: f64 = -21.464;
 /// Dry plane waves, mixed in a file: as in cli_scan.rs (1° grid, sub-grid refinement).
 const DRY_TOLERANCE_DEG: f64 = 3.0;
 
@@ -856,6 +859,13 @@ fn dry_speech_plane_wave_pcm16_with_digital_silence_is_clean() {
         checks.clean(&doc);
         checks.format(&doc, "acn", "sn3d", order);
         checks.strongest(&doc["sources"], talker, DRY_TOLERANCE_DEG);
+        // W is the talker's signal itself (SN3D W gain 1): pyloudnorm's integrated loudness
+        // of it (reference_loudness.py), within EBU Tech 3341's ±0.1 LU conformance bound.
+        let lufs = doc["omni"]["integrated_lufs"].as_f64();
+        checks.check(
+            lufs.is_some_and(|l| (l - DRY_SPEECH_W_LUFS).abs() <= 0.1),
+            || format!("W integrated {lufs:?} LUFS, pyloudnorm {DRY_SPEECH_W_LUFS} LUFS"),
+        );
     }
 }
 
@@ -930,6 +940,27 @@ fn horizontal_mix_order1_44k1_pcm16_dithered_says_no_height_content_and_nothing_
     // At first order the two sources 100° apart merge into broad lobes: only the stronger is
     // checked, with the first-order room tolerance.
     checks.strongest(&doc["sources"], truths[0], FIRST_ORDER_TOLERANCE_DEG);
+}
+
+#[test]
+fn faults_in_a_horizontal_mix_are_still_found() {
+    // The horizontal-plane identities explain zero and proportional channels; they must not
+    // hide a dead channel that should carry the mix, or a copy they do not predict.
+    let dir = tmp();
+    let mut checks = Checks::new("faults in the order-3 horizontal mix");
+    let (planes, _) = horizontal_mix(3, 48_000);
+
+    checks.on("ACN 8 (n = 2, m = 2, a horizontal component) dead");
+    let mut dead = planes.clone();
+    dead[8].fill(0.0);
+    let (_, doc) = write_and_scan(dir.path(), "dead8", 48_000, Storage::Pcm(24), &dead, &[]);
+    checks.finding_on(&doc, "silent-channel", "warning", &[8]);
+
+    checks.on("ACN 4 copied over ACN 9");
+    let mut copied = planes.clone();
+    copied[9] = copied[4].clone();
+    let (_, doc) = write_and_scan(dir.path(), "copy4", 48_000, Storage::Pcm(24), &copied, &[]);
+    checks.finding_on(&doc, "duplicate-channels", "warning", &[4, 9]);
 }
 
 #[test]
@@ -1123,20 +1154,30 @@ fn faulty_room(storage: Storage, fault: impl FnOnce(&mut Vec<Vec<f32>>)) -> (Wri
 }
 
 #[test]
-fn clipped_burst_counts_both_extreme_codes_in_pcm16_and_pcm24() {
+fn clipped_burst_counts_both_signs_in_pcm16_pcm24_and_float() {
     let mut checks = Checks::new("clipped burst on channel 5");
-    for bits in [16, 24] {
-        checks.on(format!("pcm{bits}"));
-        // A 20 ms burst on channel 5 driven 4 dB past full scale: both extreme codes are hit.
-        let (written, doc) = faulty_room(Storage::PcmDithered(bits, 8), |planes| {
+    for storage in [
+        Storage::PcmDithered(16, 8),
+        Storage::PcmDithered(24, 8),
+        Storage::Float32,
+    ] {
+        checks.on(format!("{storage:?}"));
+        // A 20 ms burst on channel 5 driven 4 dB past full scale: both extremes are hit (the
+        // float file keeps the values beyond ±1).
+        let (written, doc) = faulty_room(storage, |planes| {
             let start = ROOM_O3_48K.rate as usize * 2;
             let burst = &mut planes[5][start..start + 960];
             let gain = 1.6 / peak(burst);
             burst.iter_mut().for_each(|x| *x *= gain);
         });
-        let top = 1.0 - 1.0 / (1u32 << (bits - 1)) as f32;
-        let positive = written.planes[5].iter().filter(|&&x| x == top).count();
-        let negative = written.planes[5].iter().filter(|&&x| x == -1.0).count();
+        let top = match storage {
+            Storage::Pcm(bits) | Storage::PcmDithered(bits, _) => {
+                1.0 - 1.0 / (1u32 << (bits - 1)) as f32
+            }
+            Storage::Float32 => 1.0,
+        };
+        let positive = written.planes[5].iter().filter(|&&x| x >= top).count();
+        let negative = written.planes[5].iter().filter(|&&x| x <= -1.0).count();
         assert!(
             positive > 0 && negative > 0,
             "material: {positive} / {negative}"
@@ -1146,11 +1187,10 @@ fn clipped_burst_counts_both_extreme_codes_in_pcm16_and_pcm24() {
         for (c, &count) in written.full_scale.iter().enumerate() {
             checks.check(doc["channels"][c]["clipped_samples"] == count, || {
                 format!(
-                    "channel {c}: clipped_samples {} (written: {count} at either extreme \
-                     code{})",
+                    "channel {c}: clipped_samples {} (written: {count} at full scale{})",
                     doc["channels"][c]["clipped_samples"],
                     if c == 5 {
-                        format!(", {positive} at the highest and {negative} at the lowest")
+                        format!(", {positive} at the top and {negative} at the bottom")
                     } else {
                         String::new()
                     }
