@@ -211,6 +211,7 @@ fn room_speech(room: &'static Room) -> &'static [Vec<f32>] {
     })
 }
 
+// ---------------------------------------------------------------------------------------------
 // Signal helpers (ours, each simple enough to read; the FFT is checked against a direct sum)
 // ---------------------------------------------------------------------------------------------
 
@@ -278,8 +279,8 @@ fn fft(re: &mut [f64], im: &mut [f64], sign: f64) {
     }
 }
 
-/// `signal` convolved with each of `filters`, truncated to the signal's length plus the
-/// longest filter. Two filters share one complex FFT (one in the real, one in the imaginary
+/// The full linear convolution of `signal` with each of `filters` (signal length + longest
+/// filter − 1 samples). Two filters share one complex FFT (one in the real, one in the imaginary
 /// part), since the signal is real.
 fn convolve_all(signal: &[f32], filters: &[Vec<f32>]) -> Vec<Vec<f32>> {
     let taps = filters.iter().map(Vec::len).max().unwrap();
@@ -491,12 +492,11 @@ fn write_and_scan(
     rate: u32,
     storage: Storage,
     planes: &[Vec<f32>],
-    extra_args: &[&str],
 ) -> (Written, Value) {
     let written = quantise(planes, storage);
     let path = dir.join(format!("{name}.wav"));
     write(&path, rate, storage, &written);
-    let doc = scan_json(&path, extra_args);
+    let doc = scan_json(&path, &[]);
     (written, doc)
 }
 
@@ -787,14 +787,7 @@ fn helper_geometry_gives_the_generators_directions() {
 fn check_room_is_clean(room: &'static Room, storage: Storage, direct_path_deg: Option<f64>) {
     let dir = tmp();
     let mut checks = Checks::new(format!("{} {storage:?}", room.file));
-    let (_, doc) = write_and_scan(
-        dir.path(),
-        "room",
-        room.rate,
-        storage,
-        room_speech(room),
-        &[],
-    );
+    let (_, doc) = write_and_scan(dir.path(), "room", room.rate, storage, room_speech(room));
     assert_eq!(f(&doc["input"]["sample_rate"]), room.rate as f64);
     checks.clean(&doc);
     checks.format(&doc, "acn", "sn3d", room.order);
@@ -852,7 +845,6 @@ fn dry_speech_plane_wave_pcm16_with_digital_silence_is_clean() {
             48_000,
             Storage::Pcm(16),
             &planes,
-            &[],
         );
         let zeros = written.planes[0].iter().filter(|&&x| x == 0.0).count();
         assert!(zeros > 48_000, "material: {zeros} zero samples in W");
@@ -916,7 +908,7 @@ fn horizontal_mix_order3_pcm24_says_no_height_content_and_nothing_worse() {
     let dir = tmp();
     let mut checks = Checks::new("horizontal order 3 pcm24");
     let (planes, truths) = horizontal_mix(3, 48_000);
-    let (_, doc) = write_and_scan(dir.path(), "h3", 48_000, Storage::Pcm(24), &planes, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "h3", 48_000, Storage::Pcm(24), &planes);
     checks.clean(&doc);
     checks.finding_on(&doc, "no-height-content", "info", &[]);
     checks.format(&doc, "acn", "sn3d", 3);
@@ -935,7 +927,6 @@ fn horizontal_mix_order1_44k1_pcm16_dithered_says_no_height_content_and_nothing_
         44_100,
         Storage::PcmDithered(16, 5),
         &planes,
-        &[],
     );
     assert!(
         written.planes[2].iter().any(|&x| x != 0.0),
@@ -960,13 +951,13 @@ fn faults_in_a_horizontal_mix_are_still_found() {
     checks.on("ACN 8 (n = 2, m = 2, a horizontal component) dead");
     let mut dead = planes.clone();
     dead[8].fill(0.0);
-    let (_, doc) = write_and_scan(dir.path(), "dead8", 48_000, Storage::Pcm(24), &dead, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "dead8", 48_000, Storage::Pcm(24), &dead);
     checks.finding_on(&doc, "silent-channel", "warning", &[8]);
 
     checks.on("ACN 4 copied over ACN 9");
     let mut copied = planes.clone();
     copied[9] = copied[4].clone();
-    let (_, doc) = write_and_scan(dir.path(), "copy4", 48_000, Storage::Pcm(24), &copied, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "copy4", 48_000, Storage::Pcm(24), &copied);
     checks.finding_on(&doc, "duplicate-channels", "warning", &[4, 9]);
 }
 
@@ -993,7 +984,6 @@ fn source_that_jumps_sides_is_not_diffuse() {
         rate,
         Storage::PcmDithered(24, 9),
         &planes,
-        &[],
     );
     checks.clean(&doc);
     // Short-time ψ is 0 for each half (Pulkki 2007); only the frames at the switch see both.
@@ -1019,7 +1009,7 @@ fn talker_panned_across_the_front_is_not_diffuse() {
         let mut refs: Vec<&mut [f32]> = planes.iter_mut().map(|p| &mut p[start..end]).collect();
         encoder.add_to(Direction::new(az, 20.0), 0.9, &voice[start..end], &mut refs);
     }
-    let (_, doc) = write_and_scan(dir.path(), "pan", rate, Storage::Pcm(16), &planes, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "pan", rate, Storage::Pcm(16), &planes);
     checks.clean(&doc);
     checks.format(&doc, "acn", "sn3d", order);
     checks.diffuseness_below(&doc, 0.1);
@@ -1077,7 +1067,6 @@ fn kick_drum_and_25hz_tone_raise_no_dc_offset() {
         rate,
         Storage::PcmDithered(24, 3),
         &planes,
-        &[],
     );
     for (c, plane) in written.planes.iter().enumerate() {
         // The material: whole-file means at least 10 dB under the −50 dBFS threshold.
@@ -1129,14 +1118,7 @@ fn content_above_4khz_only_in_the_higher_orders_is_clean() {
     for (p, s) in planes.iter_mut().zip(&first) {
         p.iter_mut().zip(s).for_each(|(a, b)| *a += b);
     }
-    let (_, doc) = write_and_scan(
-        dir.path(),
-        "hf",
-        rate,
-        Storage::PcmDithered(24, 4),
-        &planes,
-        &[],
-    );
+    let (_, doc) = write_and_scan(dir.path(), "hf", rate, Storage::PcmDithered(24, 4), &planes);
     checks.clean(&doc);
     checks.format(&doc, "acn", "sn3d", 3);
     checks.effective_order(&doc, 3);
@@ -1157,7 +1139,7 @@ fn faulty_room(storage: Storage, fault: impl FnOnce(&mut Vec<Vec<f32>>)) -> (Wri
     let dir = tmp();
     let mut planes = room_speech(&ROOM_O3_48K).to_vec();
     fault(&mut planes);
-    write_and_scan(dir.path(), "fault", ROOM_O3_48K.rate, storage, &planes, &[])
+    write_and_scan(dir.path(), "fault", ROOM_O3_48K.rate, storage, &planes)
 }
 
 #[test]
@@ -1286,7 +1268,6 @@ fn room_in_n3d_or_fuma_read_as_ambix_is_a_format_mismatch() {
             ROOM_O3_48K.rate,
             Storage::PcmDithered(24, 14),
             &planes,
-            &[],
         );
         checks.finding_on(&doc, "format-mismatch", "error", &[]);
         checks.format(&doc, ordering, normalization, 3);
@@ -1315,7 +1296,6 @@ fn first_order_room_in_a_third_order_file_is_an_order_deficit() {
         44_100,
         Storage::PcmDithered(24, 15),
         &planes,
-        &[],
     );
     if let Some(deficit) = checks.finding(&doc, "order-deficit") {
         checks.check(deficit["severity"] == "warning", || format!("{deficit}"));
@@ -1360,13 +1340,13 @@ fn a_format_capsules_from_a_room_are_suspected_at_any_level() {
         checks.on(format!("{name}: peak {peak_dbfs} dBFS, {storage:?}"));
         let mut planes = capsules.clone();
         scale(&mut planes, 10f32.powf(peak_dbfs / 20.0) / loudest);
-        let (_, doc) = write_and_scan(dir.path(), name, 44_100, storage, &planes, &[]);
+        let (_, doc) = write_and_scan(dir.path(), name, 44_100, storage, &planes);
         checks.finding_on(&doc, "a-format-suspected", "warning", &[]);
     }
     // Negative cases: the same room as B-format, and a close dry talker as B-format.
     checks.on("the room as B-format");
     let room = room_speech(&ROOM_O1_44K1);
-    let (_, doc) = write_and_scan(dir.path(), "b", 44_100, Storage::Pcm(24), room, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "b", 44_100, Storage::Pcm(24), room);
     checks.no_finding(&doc, "a-format-suspected");
     let voice = speech(44_100);
     let close = encode(
@@ -1375,6 +1355,6 @@ fn a_format_capsules_from_a_room_are_suspected_at_any_level() {
         &[(voice, Direction::new(10.0, -5.0), 0.9)],
     );
     checks.on("a close dry talker as B-format");
-    let (_, doc) = write_and_scan(dir.path(), "close", 44_100, Storage::Pcm(24), &close, &[]);
+    let (_, doc) = write_and_scan(dir.path(), "close", 44_100, Storage::Pcm(24), &close);
     checks.no_finding(&doc, "a-format-suspected");
 }
