@@ -425,7 +425,11 @@ fn integer_pcm_clips_count_on_both_sides_with_the_longest_run() {
         &planes,
     );
     let doc = scan_json(&path, &[]);
-    assert_eq!(doc["channels"][1]["clipped_samples"], 200, "{}", doc["channels"][1]);
+    assert_eq!(
+        doc["channels"][1]["clipped_samples"], 200,
+        "{}",
+        doc["channels"][1]
+    );
     assert_eq!(doc["channels"][1]["longest_clip_run"], 7);
     assert_eq!(doc["channels"][0]["clipped_samples"], 0);
     let clip = doc["findings"]

@@ -192,6 +192,20 @@ fn a_refused_format_is_explained_in_the_format_panel() {
 }
 
 #[test]
+fn a_scaled_w_is_shown_as_stored_beside_its_sn3d_equivalent() {
+    // FuMa's W carries −3.01 dB (DESIGN.md): the Omni panel's SN3D readings get the stream's
+    // own W beside them, and AmbiX shows no such row.
+    let mut snapshot = quiet_snapshot(1);
+    snapshot.omni.conversion_gain_db = 3.0103;
+    snapshot.omni.true_peak_dbtp = -6.0;
+    let harness = harness(Some(snapshot));
+    let _ = harness.get_by_label("W as stored");
+    let _ = harness.get_by_label_contains("-9.0 dBTP");
+    let calm = self::harness(Some(quiet_snapshot(1)));
+    assert!(calm.query_by_label("W as stored").is_none());
+}
+
+#[test]
 fn meter_strip_handles_64_channels_and_names_the_channel() {
     let mut snapshot = quiet_snapshot(7);
     assert_eq!(snapshot.channel_status.len(), 64);

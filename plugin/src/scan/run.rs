@@ -212,7 +212,9 @@ impl Source {
             Source::File { reader, mixed } => {
                 let unreadable = |e| CliError::input(format!("cannot read '{name}': {e}"));
                 let Some((expander, file_buffers)) = mixed else {
-                    return reader.read_planar(buffers, BLOCK_FRAMES).map_err(unreadable);
+                    return reader
+                        .read_planar(buffers, BLOCK_FRAMES)
+                        .map_err(unreadable);
                 };
                 let n = reader
                     .read_planar(file_buffers, BLOCK_FRAMES)
