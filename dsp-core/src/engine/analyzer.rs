@@ -509,6 +509,8 @@ impl Analyzer {
             assumed: self.settings.assumed_format,
             channel_mean_square: &mean_square[..m],
             frames_seen: self.programme.frames,
+            absent_channels: &[],
+            low_band_covariance: None,
         };
         self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
     }

@@ -93,6 +93,27 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels,
         });
     }
+    if check.horizontal_only {
+        findings.push(Finding {
+            severity: Severity::Info,
+            code: FindingCode::NoHeightContent,
+            message: "no height content: the scene is horizontal only, so the height \
+                      channels are empty or follow the horizontal ones"
+                .to_string(),
+            channels: check.silent_by_geometry.clone(),
+        });
+    }
+    if check.a_format_suspected {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::AFormatSuspected,
+            message: "the four channels look like unconverted microphone capsule signals \
+                      (A-format): similar levels and strongly correlated, not W with three \
+                      dipoles; convert to B-format before use"
+                .to_string(),
+            channels: Vec::new(),
+        });
+    }
     if check.ready && check.effective_order < snapshot.order {
         findings.push(Finding {
             severity: Severity::Warning,
