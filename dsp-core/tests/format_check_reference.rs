@@ -144,7 +144,7 @@ impl Scene {
             channel_mean_square: &mean_square,
             frames_seen: FRAMES as u64,
             absent_channels: &[],
-            low_band_covariance: None,
+            mid_band_covariance: None,
         })
     }
 }
@@ -430,7 +430,7 @@ fn not_ready_without_enough_frames_or_signal_and_bad_input_is_refused() {
         channel_mean_square: &mean_square,
         frames_seen: score_constants::MIN_FRAMES_FOR_VERDICT - 1,
         absent_channels: &[],
-        low_band_covariance: None,
+        mid_band_covariance: None,
     };
     let early = check_format(&input);
     assert!(!early.ready);
@@ -489,7 +489,7 @@ fn cost_per_check_printout() {
         channel_mean_square: &mean_square,
         frames_seen: FRAMES as u64,
         absent_channels: &[],
-        low_band_covariance: None,
+        mid_band_covariance: None,
     };
     let started = std::time::Instant::now();
     let mut checker = FormatChecker::new(order).unwrap();

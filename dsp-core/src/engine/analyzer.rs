@@ -510,7 +510,7 @@ impl Analyzer {
             channel_mean_square: &mean_square[..m],
             frames_seen: self.programme.frames,
             absent_channels: &[],
-            low_band_covariance: None,
+            mid_band_covariance: None,
         };
         self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
     }

@@ -24,9 +24,16 @@
 //! for directional content, plane-wave eigenvectors. A B-format of a single source or of a
 //! diffuse field fails one or the other.
 //!
-//! Real capsules are not ideal cardioids and are not coincident at high frequencies, so the
-//! test is best given a low-band covariance (see
-//! [`FormatCheckInput::low_band_covariance`](super::FormatCheckInput::low_band_covariance)).
+//! # Known ambiguity
+//! A close source's proximity effect raises its dipoles above W at low frequencies. A
+//! B-format dominated by that (a bass-only source within about a metre) whose source lies
+//! in the octant where X, Y and Z are all positive reads, from one covariance, exactly like
+//! capsule signals of a wave from the opposite side: a pure dipole along the diagonal *is*
+//! such a capsule set (one capsule silent, three equal). The proximity effect fades above
+//! ~200 Hz while capsule signals keep their pattern up to where the capsules stop being
+//! coincident, so when the caller gives a mid-band covariance
+//! ([`FormatCheckInput::mid_band_covariance`](super::FormatCheckInput::mid_band_covariance))
+//! the pattern must hold there too.
 
 use super::geometry::{self, GeometryQuery};
 use super::score_constants::STEERING_FIT_NATS;
@@ -43,18 +50,24 @@ pub const TETRAHEDRAL_A_TO_B_SN3D: [[f64; 4]; 4] = {
     ]
 };
 
-/// Every pair of the four channels must correlate at least this much…
-pub const MIN_PAIR_CORRELATION: f64 = 0.0;
+/// No pair of the four channels may correlate below this (a capsule at the null of a bare
+/// plane wave carries only noise, so its correlations sit near 0)…
+pub const MIN_PAIR_CORRELATION: f64 = -0.1;
 /// …and the six correlations must average at least this (a diffuse field gives 2/3; a
-/// source opposite one capsule over a bed 10 dB down still about 0.5).
+/// source opposite one capsule, bare or over a bed 10 dB down, about 0.5).
 pub const MIN_MEAN_CORRELATION: f64 = 0.4;
-/// The four channel levels must lie within this span, dB.
-pub const MAX_LEVEL_SPAN_DB: f64 = 20.0;
+/// The four channel levels must lie within this span, dB. "Similar level" only in a loose
+/// sense: a bare plane wave near one capsule's null leaves that capsule 30–45 dB down.
+pub const MAX_LEVEL_SPAN_DB: f64 = 50.0;
 /// After A-to-B conversion the first-order energy must be within this of W's, dB (0 dB for
 /// any incoherent field in SN3D; capsules between subcardioid and supercardioid shift it by
-/// up to about ±2 dB at the low end of a real array's band).
+/// up to about ±2 dB).
 pub const MAX_CONVERTED_BALANCE_DB: f64 = 2.0;
-/// The A-to-B reading may score up to this many nats below the best B-format reading.
+/// The A-to-B reading must be a plausible field on its own: [`plausibility`] at least this.
+pub const MIN_PLAUSIBILITY_NATS: f64 = -2.0;
+/// …and may score at most this many nats below the best B-format reading (a diffuse field
+/// of capsule signals also reads as an N3D field with one source on an octant diagonal,
+/// equally plausible, so the two tie).
 pub const PLAUSIBILITY_MARGIN_NATS: f64 = 1.0;
 
 /// How plausible one reading of a 4×4 covariance is as a first-order field, in nats
@@ -65,33 +78,30 @@ pub(crate) fn plausibility(balance_db: f64, geometry: &geometry::Geometry) -> f6
         - STEERING_FIT_NATS * geometry.directional_share * (1.0 - geometry.steering_fit)
 }
 
-/// Whether the 4×4 raw `covariance` (input channel order) looks like capsule signals;
-/// `best_b_plausibility` is the best [`plausibility`] of the B-format readings.
-pub(crate) fn looks_like_a_format(
-    search: &mut SteeringFitSearch,
-    covariance: &[f64],
-    best_b_plausibility: f64,
-) -> bool {
+/// Plausibility of the 4×4 raw `covariance` (input channel order) read as capsule signals,
+/// or None when it lacks the pattern (similar levels, strong positive correlations, a
+/// first-order balance near 0 dB after A-to-B conversion).
+pub(crate) fn capsule_reading(search: &mut SteeringFitSearch, covariance: &[f64]) -> Option<f64> {
     let r = |i: usize, j: usize| covariance[i * 4 + j];
     let levels: Vec<f64> = (0..4).map(|i| r(i, i)).collect();
     let (lowest, highest) = levels.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &v| {
         (lo.min(v), hi.max(v))
     });
     if lowest <= 0.0 || 10.0 * (highest / lowest).log10() > MAX_LEVEL_SPAN_DB {
-        return false;
+        return None;
     }
     let mut sum = 0.0;
     for i in 0..4 {
         for j in i + 1..4 {
             let correlation = r(i, j) / (levels[i] * levels[j]).sqrt();
             if correlation < MIN_PAIR_CORRELATION {
-                return false;
+                return None;
             }
             sum += correlation;
         }
     }
     if sum / 6.0 < MIN_MEAN_CORRELATION {
-        return false;
+        return None;
     }
     let t = &TETRAHEDRAL_A_TO_B_SN3D;
     let mut converted = [0.0; 16];
@@ -109,11 +119,11 @@ pub(crate) fn looks_like_a_format(
     let w = converted[0];
     let dipoles = converted[5] + converted[10] + converted[15];
     if w <= 0.0 || dipoles <= 0.0 {
-        return false;
+        return None;
     }
     let balance_db = 10.0 * (dipoles / w).log10();
     if balance_db.abs() > MAX_CONVERTED_BALANCE_DB {
-        return false;
+        return None;
     }
     let geometry = geometry::analyse(
         search,
@@ -124,5 +134,6 @@ pub(crate) fn looks_like_a_format(
             present: &[true; 4],
         },
     );
-    plausibility(balance_db, &geometry) >= best_b_plausibility - PLAUSIBILITY_MARGIN_NATS
+    let score = plausibility(balance_db, &geometry);
+    (score >= MIN_PLAUSIBILITY_NATS).then_some(score)
 }

@@ -106,8 +106,9 @@ impl HorizontalIdentities {
 
     /// Judges the predictions up to the effective order. Ties with a silent or absent
     /// member are skipped (a dead in-plane channel is a fault reported elsewhere, not a
-    /// broken identity); up to a quarter of the remaining predictions may fail (a copied or
-    /// corrupted channel) and those channels are then not exempted.
+    /// broken identity); when at least one tie holds, up to a quarter of the remaining
+    /// predictions may fail (a copied or corrupted channel) and those channels are then not
+    /// exempted.
     pub(crate) fn judge(&self, query: &HorizontalQuery) -> HorizontalReading {
         let order = query.effective_order;
         let mut reading = HorizontalReading::default();
@@ -173,8 +174,14 @@ impl HorizontalIdentities {
         let first_order_noise: f64 = [1, 3].iter().map(|&a| noise(a)).sum();
         let contrast = first_order >= MIN_FIRST_ORDER_SHARE * w
             && first_order >= MIN_CONTRAST_TO_NOISE * first_order_noise;
-        reading.horizontal =
-            predictions > 0 && reading.violations <= (predictions - 1) / 4 && contrast;
+        // Broken predictions are tolerated only next to ties that hold: empty channels alone
+        // (a mixed-order or band-limited stream) are no evidence of horizontal content.
+        let allowed = if reading.groups.is_empty() {
+            0
+        } else {
+            (predictions - 1) / 4
+        };
+        reading.horizontal = predictions > 0 && reading.violations <= allowed && contrast;
         reading
     }
 }

@@ -126,10 +126,11 @@ pub struct FormatCheckInput<'a> {
     /// Input channels known to be absent (zero-filled by the reader, e.g. the components a
     /// mixed-order FuMa file does not carry), each below M; empty = none.
     pub absent_channels: &'a [usize],
-    /// Covariance of a low band (the engine's low band, below ~250 Hz), same layout as
-    /// `raw_covariance`; used only for the A-format test, where capsules are coincident
-    /// enough for the A-to-B relation to hold. None = use `raw_covariance`.
-    pub low_band_covariance: Option<&'a [f64]>,
+    /// Covariance of the mid band (the engine's 250–4000 Hz by default), same layout and
+    /// units as `raw_covariance`; used only by the A-format test, which then asks for the
+    /// capsule pattern in this band as well (a close source's proximity effect can mimic it
+    /// at low frequencies only, see [`a_format`]). None = full band only.
+    pub mid_band_covariance: Option<&'a [f64]>,
 }
 
 /// Bad input to the format check (a caller bug or corrupt data), with the numbers.
@@ -427,9 +428,13 @@ impl FormatChecker {
                     a_format::plausibility(balance, &e.geometry)
                 })
                 .fold(f64::NEG_INFINITY, f64::max);
-            let covariance = input.low_band_covariance.unwrap_or(input.raw_covariance);
-            result.a_format_suspected =
-                a_format::looks_like_a_format(&mut self.search, covariance, best_b);
+            let full_band = a_format::capsule_reading(&mut self.search, input.raw_covariance);
+            let mid_band_agrees = input
+                .mid_band_covariance
+                .is_none_or(|mid| a_format::capsule_reading(&mut self.search, mid).is_some());
+            result.a_format_suspected = mid_band_agrees
+                && full_band
+                    .is_some_and(|score| score >= best_b - a_format::PLAUSIBILITY_MARGIN_NATS);
         }
         Ok(result)
     }
@@ -506,7 +511,7 @@ impl FormatChecker {
         let channels = channel_count(self.order);
         for (what, covariance) in [
             ("covariance", Some(input.raw_covariance)),
-            ("low-band covariance", input.low_band_covariance),
+            ("mid-band covariance", input.mid_band_covariance),
         ] {
             let Some(covariance) = covariance else {
                 continue;
