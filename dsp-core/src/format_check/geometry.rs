@@ -36,6 +36,9 @@ pub(crate) struct Geometry {
     pub directional_share: f64,
     /// Some(K): the covariance is K plane waves over a floor [`PLANE_WAVE_EIGEN_GAP`] down.
     pub plane_waves: Option<usize>,
+    /// Some(K): the covariance has K ≤ [`MAX_PLANE_WAVES`] strong eigenvalues over such a
+    /// floor, whether or not they fit plane waves.
+    pub low_rank: Option<usize>,
 }
 
 /// What [`analyse`] looks at.
@@ -128,11 +131,11 @@ pub(crate) fn analyse(search: &mut SteeringFitSearch, query: &GeometryQuery) -> 
     // Exactly K plane waves? The first K with a gap below it, then K distinct directions
     // whose steering vectors lie in the span of the top K eigenvectors.
     let most = MAX_PLANE_WAVES.min(size.saturating_sub(3));
-    let count = (1..=most).find(|&k| {
+    let low_rank = (1..=most).find(|&k| {
         let next = if k < size { value(k).max(0.0) } else { 0.0 };
         next <= PLANE_WAVE_EIGEN_GAP * value(k - 1)
     });
-    let plane_waves = count.filter(|&k| {
+    let plane_waves = low_rank.filter(|&k| {
         let next = if k < size { value(k).max(0.0) } else { 0.0 };
         let tolerance = PLANE_WAVE_FIT_TOLERANCE.max((size - k) as f64 * next / value(k - 1));
         let mut basis = vec![0.0; k * channels];
@@ -161,5 +164,6 @@ pub(crate) fn analyse(search: &mut SteeringFitSearch, query: &GeometryQuery) -> 
         steering_fit,
         directional_share,
         plane_waves,
+        low_rank,
     }
 }

@@ -210,6 +210,8 @@ struct Evidence {
     horizontal: HorizontalReading,
     /// Orders whose components are all present, indexed \[order\].
     complete: Vec<bool>,
+    /// Components present under this hypothesis, indexed \[acn\].
+    present: Vec<bool>,
 }
 
 /// Per-channel facts the check needs, indexed by [input channel].
@@ -356,6 +358,7 @@ impl FormatChecker {
                 geometry,
                 horizontal,
                 complete,
+                present,
             });
         }
 
@@ -414,7 +417,11 @@ impl FormatChecker {
             result.confidence = best.probability;
         }
 
+        let culprits = self.copied_into_plane_waves(&evidence, input, &excluded, effective_order);
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
+        if let Some(culprits) = culprits {
+            restrict_to_culprits(&mut result.duplicate_channels, &culprits, input, channels);
+        }
 
         if result.ready && self.order == 1 && input.absent_channels.is_empty() {
             let best_b = evidence
@@ -501,6 +508,57 @@ impl FormatChecker {
         result.duplicate_channels = pairs;
     }
 
+    /// When the covariance is a few strong components that do *not* fit plane waves under
+    /// any hypothesis, the input channels whose removal makes them fit (a channel copied or
+    /// corrupted inside a one-to-three-source scene), if any. Costs one eigen-analysis per
+    /// live channel and hypothesis, only in that case.
+    fn copied_into_plane_waves(
+        &mut self,
+        evidence: &[Evidence],
+        input: &FormatCheckInput,
+        excluded: &[usize],
+        effective_order: usize,
+    ) -> Option<Vec<usize>> {
+        if evidence.iter().any(|e| e.geometry.plane_waves.is_some())
+            || evidence.iter().all(|e| e.geometry.low_rank.is_none())
+        {
+            return None;
+        }
+        for (index, e) in evidence.iter().enumerate() {
+            if e.geometry.low_rank.is_none() {
+                continue;
+            }
+            self.convert(index, input.raw_covariance);
+            let plan = &self.hypotheses[index].plan;
+            let mut culprits = Vec::new();
+            for acn in 0..channel_count(effective_order) {
+                let channel = plan.source_channel(acn);
+                if excluded.binary_search(&channel).is_ok() || !e.present[acn] {
+                    continue;
+                }
+                let mut present = e.present.clone();
+                present[acn] = false;
+                let masked = geometry::analyse(
+                    &mut self.search,
+                    &GeometryQuery {
+                        covariance: &self.converted,
+                        full_order: self.order,
+                        order: effective_order,
+                        present: &present,
+                    },
+                );
+                if masked.plane_waves.is_some() {
+                    culprits.push(channel);
+                }
+            }
+            if !culprits.is_empty() {
+                culprits.sort_unstable();
+                return Some(culprits);
+            }
+        }
+        None
+    }
+
     fn validate(&self, input: &FormatCheckInput) -> Result<usize, FormatCheckError> {
         if input.order != self.order {
             return Err(FormatCheckError::OrderMismatch {
@@ -566,6 +624,28 @@ impl FormatChecker {
                 (10.0 * (energy / w).log10()).max(BALANCE_FLOOR_DB)
             })
             .collect()
+    }
+}
+
+/// Keeps only the pairs that involve a culprit channel and, where a culprit has partners of
+/// the same level (an exact or inverted copy), only those partners.
+fn restrict_to_culprits(
+    pairs: &mut Vec<(usize, usize)>,
+    culprits: &[usize],
+    input: &FormatCheckInput,
+    channels: usize,
+) {
+    let power = |c: usize| input.raw_covariance[c * channels + c];
+    let same_level =
+        |a: usize, b: usize| (power(a) - power(b)).abs() <= 1e-3 * power(a).max(power(b));
+    pairs.retain(|&(i, j)| culprits.contains(&i) || culprits.contains(&j));
+    let copies: Vec<(usize, usize)> = pairs
+        .iter()
+        .copied()
+        .filter(|&(i, j)| same_level(i, j))
+        .collect();
+    if !copies.is_empty() {
+        *pairs = copies;
     }
 }
 
