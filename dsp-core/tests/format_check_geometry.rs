@@ -370,6 +370,19 @@ fn height_channels_of_a_full_sphere_scene_are_not_excused() {
                 .any(|(_, c)| *c == FindingCode::NoHeightContent)
         );
     }
+    // First order has only the Z = 0 prediction; a dead Z under a full-sphere diffuse field
+    // is told from horizontal content by X² + Y² = W² (SN3D, every horizontal plane wave;
+    // a diffuse field gives 2/3).
+    for format in [AmbiFormat::ACN_SN3D, AmbiFormat::FUMA] {
+        let mut scene = Scene::new(1, format)
+            .with_bed(64, -20.0, 25)
+            .stored(Storage::Pcm(24, false), 25);
+        let z = format.ordering.channel_of_acn(2).unwrap();
+        scene.channels[z].fill(0.0);
+        let check = scene.check(format);
+        assert!(!check.horizontal_only, "{check:?}");
+        assert_eq!(check.silent_channels, vec![z]);
+    }
     // Sources 5° off the plane are not horizontal (sin² 5° = −21 dB in Z).
     let lifted: Vec<(Direction, f64)> = horizontal_sources(-20.0)
         .iter()

@@ -36,6 +36,14 @@ const MIN_FIRST_ORDER_SHARE: f64 = 0.01;
 /// is not called horizontal.
 const MIN_CONTRAST_TO_NOISE: f64 = 100.0;
 
+/// With first order only there are no ties, just Z = 0, which a dead Z in a full-sphere
+/// scene also satisfies. Then the horizontal first-order energy must also match W's within
+/// this, dB: Y² + X² = W² for every plane wave at elevation 0 (SN3D), so for any incoherent
+/// horizontal mixture, while a full-sphere diffuse field gives 2/3 (−1.76 dB). Coherent
+/// sources (one signal at two directions) can fall below; such first-order streams get a
+/// silent-channel warning for Z.
+pub const FIRST_ORDER_BALANCE_TOLERANCE_DB: f64 = 1.0;
+
 /// A predicted tie: `acn` = `ratio` · `sectoral` at elevation 0.
 #[derive(Clone, Debug)]
 struct Tie {
@@ -174,6 +182,8 @@ impl HorizontalIdentities {
         let first_order_noise: f64 = [1, 3].iter().map(|&a| noise(a)).sum();
         let contrast = first_order >= MIN_FIRST_ORDER_SHARE * w
             && first_order >= MIN_CONTRAST_TO_NOISE * first_order_noise;
+        let balanced = order >= 2
+            || (10.0 * (first_order / w).log10()).abs() <= FIRST_ORDER_BALANCE_TOLERANCE_DB;
         // Broken predictions are tolerated only next to ties that hold: empty channels alone
         // (a mixed-order or band-limited stream) are no evidence of horizontal content.
         let allowed = if reading.groups.is_empty() {
@@ -181,7 +191,8 @@ impl HorizontalIdentities {
         } else {
             (predictions - 1) / 4
         };
-        reading.horizontal = predictions > 0 && reading.violations <= allowed && contrast;
+        reading.horizontal =
+            predictions > 0 && reading.violations <= allowed && contrast && balanced;
         reading
     }
 }
