@@ -839,3 +839,47 @@ fn known_absent_components_are_neither_silent_nor_misleading() {
     let bad = check_channels(&channels, 2, AmbiFormat::FUMA, &[9], None);
     assert!(!bad.ready && bad.hypotheses.is_empty());
 }
+
+#[test]
+fn cost_of_geometry_cases_printout() {
+    // Speed figures, not assertions: `-- --nocapture cost_of_geometry`. The copied channel
+    // in a one-source scene takes the slow path (one masked eigen-analysis per channel and
+    // hypothesis).
+    use fieldglass_dsp::format_check::FormatChecker;
+    let order = 7;
+    let horizontal = Scene::new(order, AmbiFormat::ACN_SN3D)
+        .with_sources(&horizontal_sources(-20.0), 81)
+        .stored(Storage::Pcm(16, true), 81);
+    let mut copied = Scene::new(order, AmbiFormat::ACN_SN3D)
+        .with_sources(&[(Direction::new(40.0, 20.0), -20.0)], 82);
+    copied.channels[30] = copied.channels[1].clone();
+    let mut checker = FormatChecker::new(order).unwrap();
+    for (name, scene) in [
+        ("horizontal mix", &horizontal),
+        ("one source, copied channel", &copied),
+    ] {
+        let covariance = covariance(&scene.channels);
+        let m = scene.channels.len();
+        let mean_square: Vec<f64> = (0..m).map(|i| covariance[i * m + i]).collect();
+        let input = FormatCheckInput {
+            raw_covariance: &covariance,
+            order,
+            assumed: AmbiFormat::ACN_SN3D,
+            channel_mean_square: &mean_square,
+            frames_seen: FRAMES as u64,
+            absent_channels: &[],
+            mid_band_covariance: None,
+        };
+        let runs = 5;
+        let started = std::time::Instant::now();
+        let mut last = None;
+        for _ in 0..runs {
+            last = Some(std::hint::black_box(checker.check(&input).unwrap()));
+        }
+        println!(
+            "format check order {order}, {name}: {:.2} ms each; duplicates {:?}",
+            started.elapsed().as_secs_f64() * 1e3 / runs as f64,
+            last.unwrap().duplicate_channels
+        );
+    }
+}
