@@ -6,14 +6,16 @@
 //! Reference facts, each named again beside its check:
 //! - Horizontal-plane identities: P_n^m(0) = 0 for n + m odd, and for n + m even components
 //!   of equal m differ only by the constant N_n^m P_n^m(0) (the SN3D definitions of
-//!   DESIGN.md; the parity of P_n^m is in Abramowitz & Stegun, *Handbook of Mathematical
-//!   Functions*, 8.6.1–8.6.2 and §8.2, from memory); P_2(0) = −1/2.
+//!   DESIGN.md; P_n^m(0) carries the factor cos((n+m)π/2) in Abramowitz & Stegun, *Handbook
+//!   of Mathematical Functions*, 8.6.1, from memory); P_2(0) = −1/2 from P_2(x) = (3x²−1)/2.
 //! - A single plane wave has a rank-one covariance, so every pair of its channels is
 //!   perfectly correlated (definition of the encoder: B = y(d)·s).
 //! - Tetrahedral A-format: first-order cardioid capsules at FLU, FRD, BLD, BRU (unit vectors
-//!   (±1, ±1, ±1)/√3), capsule = ½(1 + cos θ); Gerzon 1975 (AES preprint L-20) gives the
-//!   sum/difference A-to-B matrix; its SN3D scaling is derived in `format_check::a_format`
-//!   and checked here against the encoder.
+//!   (±1, ±1, ±1)/√3), capsule = ½(1 + cos θ); Gerzon's tetrahedral A-to-B relation (1975,
+//!   AES 50th Convention; from memory) gives the sum/difference matrix; its SN3D scaling is
+//!   derived in `format_check::a_format` and checked here against the encoder.
+//! - FuMa mixed-order channel sets (3, 5, 6, 7, 8, 9, 11 channels) from the `.amb` B-format
+//!   file description (from memory); FuMa channel order as in DESIGN.md.
 //! - TPDF dither of ±1 LSB adds q²/6 to the q²/12 of rounding (common practice; Lipshitz,
 //!   Wannamaker & Vanderkooy 1992, from memory).
 
@@ -536,7 +538,7 @@ fn random_bed(count: usize, level_db: f64, seed: u64) -> Vec<(Direction, f64)> {
 
 #[test]
 fn tetrahedral_a_to_b_matrix_turns_cardioid_capsules_into_the_encoder_output() {
-    // Gerzon 1975 sum/difference matrix with the SN3D scaling of `a_format`: capsule gains
+    // Gerzon's sum/difference matrix with the SN3D scaling of `a_format`: capsule gains
     // of ideal cardioids at FLU, FRD, BLD, BRU must give the encoder's ACN/SN3D gains.
     let mut encoder = PlaneWaveEncoder::new(1, AmbiFormat::ACN_SN3D).unwrap();
     let mut random = Sequence(5);
@@ -783,9 +785,8 @@ fn real_b_format_is_not_mistaken_for_capsule_signals() {
 
 #[test]
 fn known_absent_components_are_neither_silent_nor_misleading() {
-    // FuMa mixed-order sets (Malham's horizontal/mixed-order channel sets, REFERENCES.md §2):
-    // the reader zero-fills what the file does not carry. FuMa channel order W X Y Z R S T U
-    // V K L M N O P Q (DESIGN.md).
+    // FuMa mixed-order sets (`.amb` description, from memory): the reader zero-fills what
+    // the file does not carry. FuMa channel order W X Y Z R S T U V K L M N O P Q (DESIGN.md).
     let sources = [
         (Direction::new(-35.0, 8.0), -20.0),
         (Direction::new(70.0, 25.0), -24.0),

@@ -9,9 +9,11 @@
 //! Σ d_i = 0 and Σ d_i d_iᵀ = (4/3)·I, the sums and differences
 //! W = ½(FLU + FRD + BLD + BRU), X = (√3/2)(FLU + FRD − BLD − BRU),
 //! Y = (√3/2)(FLU − FRD + BLD − BRU), Z = (√3/2)(FLU − FRD − BLD + BRU)
-//! recover ACN/SN3D B-format exactly. This is the tetrahedral A-to-B matrix of Gerzon (1975,
-//! "The design of precisely coincident microphone arrays for stereo and surround sound",
-//! AES preprint L-20) with the SN3D scaling worked out here for ideal cardioids. A
+//! recover ACN/SN3D B-format exactly. These are the sums and differences of Gerzon's
+//! tetrahedral (Soundfield) A-to-B relation (M. A. Gerzon, "The design of precisely
+//! coincident microphone arrays for stereo and surround sound", AES 50th Convention, 1975;
+//! also Zotter & Frank, *Ambisonics*, 2019, on first-order microphones; both from memory)
+//! with the SN3D scaling worked out here for ideal cardioids. A
 //! permutation of the capsules only rotates or mirrors the result (the permutations of a
 //! tetrahedron's vertices are its symmetries), so the capsule order need not be known.
 //!

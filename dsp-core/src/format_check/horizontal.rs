@@ -217,7 +217,7 @@ mod tests {
                 assert!((y[tie.acn] - tie.ratio * y[tie.sectoral]).abs() < 1e-12);
             }
         }
-        // P_2(0) = −1/2 (Legendre polynomial, any handbook): ACN 6 = −W/2 at elevation 0.
+        // P_2(0) = −1/2 from P_2(x) = (3x² − 1)/2: ACN 6 = −W/2 at elevation 0.
         let tie6 = identities.ties.iter().find(|t| t.acn == 6).unwrap();
         assert_eq!(tie6.sectoral, 0);
         assert!((tie6.ratio + 0.5).abs() < 1e-15);
