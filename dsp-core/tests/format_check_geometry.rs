@@ -251,7 +251,8 @@ fn horizontal_mix_is_recognised_and_raises_no_warning() {
     let mut seed = 1000;
     for (order, format) in cases {
         // Order 3 N3D peaks at √7 times the SN3D level: keep the loud case below clipping.
-        for level_db in [-26.0, -50.0] {
+        // −70 dBFS: a quiet ambience, 26 dB above 16-bit dither.
+        for level_db in [-26.0, -50.0, -70.0] {
             for storage in STORAGES {
                 seed += 1;
                 let scene = Scene::new(order, format)
@@ -385,6 +386,13 @@ fn height_channels_of_a_full_sphere_scene_are_not_excused() {
         assert!(!check.horizontal_only, "{check:?}");
         assert_eq!(check.silent_channels, vec![z]);
     }
+    // A full-sphere field near the 16-bit floor (−85 dBFS, 11 dB above dither) keeps its
+    // height channels inside the noise allowance; it is still not horizontal.
+    let quiet = Scene::new(order, AmbiFormat::ACN_SN3D)
+        .with_bed(56, -85.0, 26)
+        .stored(Storage::Pcm(16, true), 26);
+    let check = quiet.check(AmbiFormat::ACN_SN3D);
+    assert!(!check.horizontal_only, "{check:?}");
     // Sources 5° off the plane are not horizontal (sin² 5° = −21 dB in Z).
     let lifted: Vec<(Direction, f64)> = horizontal_sources(-20.0)
         .iter()

@@ -32,9 +32,11 @@ pub const HORIZONTAL_NOISE_MEAN_SQUARE: f64 = 1e-8;
 /// of W's energy there (Y² + X² = 1 at elevation 0, SN3D).
 const MIN_FIRST_ORDER_SHARE: f64 = 0.01;
 
-/// …and at least this multiple of the noise allowance, so that a stream at the noise floor
-/// is not called horizontal.
-const MIN_CONTRAST_TO_NOISE: f64 = 100.0;
+/// …and at least this multiple (20 dB) of the mean energy left in the predicted-empty
+/// channels that count as empty, so that a full-sphere stream near the noise floor, whose height channels fall
+/// inside the noise allowance, is not called horizontal (its Z still carries a third of
+/// its first-order energy), while a quiet horizontal mix is.
+const MIN_CONTRAST_TO_HEIGHT: f64 = 100.0;
 
 /// With first order only there are no ties, just Z = 0, which a dead Z in a full-sphere
 /// scene also satisfies. Then the horizontal first-order energy must also match W's within
@@ -141,6 +143,8 @@ impl HorizontalIdentities {
             }
             held
         };
+        let mut height_energy = 0.0;
+        let mut height_channels = 0;
         for &a in self
             .zero
             .iter()
@@ -149,6 +153,8 @@ impl HorizontalIdentities {
             let allowance = HORIZONTAL_RESIDUAL_SHARE * w + noise(a);
             if judge(c(a, a), allowance, &mut reading) {
                 reading.zero_held.push(a);
+                height_energy += c(a, a).max(0.0);
+                height_channels += 1;
             }
         }
         let mut groups: Vec<Vec<usize>> = Vec::new();
@@ -179,9 +185,9 @@ impl HorizontalIdentities {
             .filter(|&&a| query.present[a])
             .map(|&a| c(a, a))
             .sum();
-        let first_order_noise: f64 = [1, 3].iter().map(|&a| noise(a)).sum();
+        let mean_height = height_energy / height_channels.max(1) as f64;
         let contrast = first_order >= MIN_FIRST_ORDER_SHARE * w
-            && first_order >= MIN_CONTRAST_TO_NOISE * first_order_noise;
+            && first_order >= MIN_CONTRAST_TO_HEIGHT * mean_height;
         let balanced = order >= 2
             || (10.0 * (first_order / w).log10()).abs() <= FIRST_ORDER_BALANCE_TOLERANCE_DB;
         // Broken predictions are tolerated only next to ties that hold: empty channels alone
