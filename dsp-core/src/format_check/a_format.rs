@@ -65,7 +65,7 @@ pub const MAX_LEVEL_SPAN_DB: f64 = 50.0;
 /// any incoherent field in SN3D; capsules between subcardioid and supercardioid shift it by
 /// up to about ±2 dB).
 pub const MAX_CONVERTED_BALANCE_DB: f64 = 2.0;
-/// The A-to-B reading must be a plausible field on its own: [`plausibility`] at least this.
+/// The A-to-B reading must be a plausible field on its own: the plausibility (balance penalty plus unfitted share, nats) at least this.
 pub const MIN_PLAUSIBILITY_NATS: f64 = -2.0;
 /// …and may score at most this many nats below the best B-format reading (a diffuse field
 /// of capsule signals also reads as an N3D field with one source on an octant diagonal,

@@ -38,7 +38,9 @@
 //!   exactly K ≤ 3 plane waves over a floor 30 dB down (one eigenvalue gap, then K distinct
 //!   steering vectors inside the signal subspace), every strong correlation is geometry and
 //!   no pair is a duplicate. The floor may be quantisation noise: the tolerances scale
-//!   with it.
+//!   with it. When the strong components do not fit plane waves, the channel whose removal
+//!   makes them fit is named (with its same-level copy partner) rather than every
+//!   correlated pair.
 //!
 //! Known-absent channels (`absent_channels`, e.g. the components a mixed-order FuMa file
 //! does not carry) are never silent or duplicate; they are left out of the eigen-analysis
@@ -46,7 +48,7 @@
 //! score (its `order_balance_db` entry is the energy of the components present).
 //!
 //! At first order the checker also asks whether the four channels are unconverted capsule
-//! signals ([`a_format`]).
+//! signals ([`a_format`]), on the full-band covariance and, when given, the mid band too.
 
 pub mod a_format;
 mod channel_health;
