@@ -247,6 +247,7 @@ fn horizontal_mix_is_recognised_and_raises_no_warning() {
         (3, AmbiFormat::ACN_N3D),
         (3, AmbiFormat::FUMA),
         (5, AmbiFormat::ACN_SN3D),
+        (7, AmbiFormat::ACN_N3D),
     ];
     let mut seed = 1000;
     for (order, format) in cases {
