@@ -143,6 +143,8 @@ impl Scene {
             assumed,
             channel_mean_square: &mean_square,
             frames_seen: FRAMES as u64,
+            absent_channels: &[],
+            mid_band_covariance: None,
         })
     }
 }
@@ -427,6 +429,8 @@ fn not_ready_without_enough_frames_or_signal_and_bad_input_is_refused() {
         assumed: AmbiFormat::ACN_SN3D,
         channel_mean_square: &mean_square,
         frames_seen: score_constants::MIN_FRAMES_FOR_VERDICT - 1,
+        absent_channels: &[],
+        mid_band_covariance: None,
     };
     let early = check_format(&input);
     assert!(!early.ready);
@@ -484,6 +488,8 @@ fn cost_per_check_printout() {
         assumed: AmbiFormat::ACN_SN3D,
         channel_mean_square: &mean_square,
         frames_seen: FRAMES as u64,
+        absent_channels: &[],
+        mid_band_covariance: None,
     };
     let started = std::time::Instant::now();
     let mut checker = FormatChecker::new(order).unwrap();

@@ -454,6 +454,12 @@ impl Analyzer {
     fn update_channels(&mut self) {
         let m = self.layout.spatial_channels;
         let tolerance = self.settings.over_omni_tolerance_db;
+        // Empty by the scene's geometry or absent from the file: not silent channels.
+        let explained = |c: usize| {
+            self.absent_channels.contains(&c)
+                || self.snapshot.format_check.silent_by_geometry.contains(&c)
+        };
+        let explained: [bool; 64] = std::array::from_fn(explained);
         let status = &mut self.snapshot.channel_status;
         status.resize(self.setup.channels, ChannelStatus::default());
         // SN3D level of a file channel = its raw level + 20·log10|gain of the ACN it carries|.
@@ -487,7 +493,7 @@ impl Analyzer {
                 reading,
                 sn3d_level_dbfs: sn3d_level,
                 over_omni: over,
-                silent: reading.rms_dbfs < -120.0,
+                silent: reading.rms_dbfs < -120.0 && !explained.get(c).copied().unwrap_or(false),
             };
         }
         // Omni: W's raw meters, shifted by its conversion gain.
@@ -514,6 +520,9 @@ impl Analyzer {
         let full = Band::Full.index();
         let scale = self.integrated_scale(full);
         let cov: Vec<f64> = self.integrated[full].iter().map(|v| v * scale).collect();
+        let mid = Band::Mid.index();
+        let mid_scale = self.integrated_scale(mid);
+        let mid_cov: Vec<f64> = self.integrated[mid].iter().map(|v| v * mid_scale).collect();
         let mean_square = self.programme_mean_square();
         let input = FormatCheckInput {
             raw_covariance: &cov,
@@ -521,14 +530,12 @@ impl Analyzer {
             assumed: self.settings.assumed_format,
             channel_mean_square: &mean_square[..m],
             frames_seen: self.integrated_frames[full] * self.covariance.framing().hop as u64,
+            absent_channels: &self.absent_channels,
+            // The A-format test tells capsule signals from a close source's proximity effect
+            // in the mid band.
+            mid_band_covariance: (self.integrated_frames[mid] > 0).then_some(mid_cov.as_slice()),
         };
-        let mut check = self.checker.check(&input).unwrap_or_default();
-        let absent = &self.absent_channels;
-        check.silent_channels.retain(|c| !absent.contains(c));
-        check
-            .duplicate_channels
-            .retain(|(a, b)| !absent.contains(a) && !absent.contains(b));
-        self.snapshot.format_check = check;
+        self.snapshot.format_check = self.checker.check(&input).unwrap_or_default();
         self.snapshot.programme = self.programme_summary();
     }
 
@@ -554,6 +561,7 @@ impl Analyzer {
         let w_input = self.conversion.source_channel(0);
         let w_sn3d = sn3d_mean_square(w_input);
         let w_active = w_sn3d >= SILENT_MEAN_SQUARE;
+        let check = &self.snapshot.format_check;
         let channels: Vec<ChannelProgramme> = (0..self.setup.channels)
             .map(|c| {
                 let totals = self.meters.programme(c).unwrap_or_default();
@@ -576,7 +584,8 @@ impl Analyzer {
                         && w_active
                         && mean_square_db(sn3d) > mean_square_db(w_sn3d) + tolerance,
                     silent: mean_square[c] < SILENT_MEAN_SQUARE
-                        && !self.absent_channels.contains(&c),
+                        && !self.absent_channels.contains(&c)
+                        && !check.silent_by_geometry.contains(&c),
                 }
             })
             .collect();
@@ -591,7 +600,6 @@ impl Analyzer {
             max_momentary_lufs: self.loudness.max_momentary_lufs(),
             max_short_term_lufs: self.loudness.max_short_term_lufs(),
         };
-        let check = &self.snapshot.format_check;
         let mut summary = ProgrammeSummary {
             duration_s: self.programme_frames as f64 / self.setup.sample_rate_hz,
             channels,

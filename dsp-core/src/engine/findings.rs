@@ -64,8 +64,12 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: clipped,
         });
     }
+    let check = &snapshot.format_check;
+    // Capsule signals read as B-format put every "dipole" at W's level and look like another
+    // normalisation: one cause, reported once as a-format-suspected.
+    let a_format = check.a_format_suspected;
     let over = pick(&|s| s.over_omni);
-    if !over.is_empty() {
+    if !over.is_empty() && !a_format {
         findings.push(Finding {
             severity: Severity::Warning,
             code: FindingCode::OverOmni,
@@ -78,7 +82,6 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: over,
         });
     }
-    let check = &snapshot.format_check;
     if !check.silent_channels.is_empty() {
         findings.push(Finding {
             severity: Severity::Warning,
@@ -110,10 +113,33 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels,
         });
     }
+    if check.horizontal_only {
+        findings.push(Finding {
+            severity: Severity::Info,
+            code: FindingCode::NoHeightContent,
+            message: "no height content: the scene is horizontal only, so the height \
+                      channels are empty or follow the horizontal ones"
+                .to_string(),
+            // About the scene, not a fault of particular channels.
+            channels: Vec::new(),
+        });
+    }
+    if check.a_format_suspected {
+        findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::AFormatSuspected,
+            message: "the four channels look like unconverted microphone capsule signals \
+                      (A-format): similar levels and strongly correlated, not W with three \
+                      dipoles; convert to B-format before use"
+                .to_string(),
+            channels: Vec::new(),
+        });
+    }
     if check.ready && check.effective_order < snapshot.order {
         findings.push(order_deficit(snapshot.order, check.effective_order));
     }
     if let Some(detected) = check.detected
+        && !a_format
         && check.ready
         && detected != snapshot.assumed_format
         && check.confidence >= MISMATCH_CONFIDENCE

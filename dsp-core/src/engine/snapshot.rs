@@ -203,6 +203,10 @@ pub enum FindingCode {
     /// The file's declared sizes were wrong (an unfinalised recording, a size that wrapped
     /// past 4 GiB) and the reader recovered them from the file's length.
     SizeRecovered,
+    /// The scene is horizontal only (info).
+    NoHeightContent,
+    /// The four channels look like unconverted microphone capsule signals.
+    AFormatSuspected,
 }
 
 impl FindingCode {
@@ -217,6 +221,8 @@ impl FindingCode {
             Self::InvalidSamples => "invalid-samples",
             Self::DcOffset => "dc-offset",
             Self::SizeRecovered => "size-recovered",
+            Self::NoHeightContent => "no-height-content",
+            Self::AFormatSuspected => "a-format-suspected",
         }
     }
 }
@@ -257,10 +263,20 @@ pub struct FormatCheck {
     pub confidence: f64,
     /// Highest order that carries energy.
     pub effective_order: usize,
-    /// Input channels that carry no signal while W does.
+    /// Input channels that carry no signal while W does and that nothing explains (known-absent
+    /// channels and the empty channels of a horizontal scene are not listed).
     pub silent_channels: Vec<usize>,
-    /// Pairs of input channels that carry the same signal.
+    /// Pairs of input channels that carry the same signal where the scene's geometry does
+    /// not explain it (a few plane waves or horizontal-only content tie channels by physics).
     pub duplicate_channels: Vec<(usize, usize)>,
+    /// The scene has no height content: the horizontal-plane identities of the SH hold.
+    pub horizontal_only: bool,
+    /// Input channels that carry no signal because the scene is horizontal (components
+    /// with n + |m| odd); not a fault.
+    pub silent_by_geometry: Vec<usize>,
+    /// A first-order stream looks like the four capsule signals of a tetrahedral microphone
+    /// (A-format) rather than B-format; only set when ready.
+    pub a_format_suspected: bool,
 }
 
 /// Load and hand-off health.

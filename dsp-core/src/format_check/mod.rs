@@ -24,16 +24,45 @@
 //!   (FuMa is far more common) decides between them.
 //!
 //! Scores combine as log-likelihoods, see [`score_constants`]; probabilities are the softmax.
+//!
+//! # Ordinary scenes are not faults
+//! Dead and duplicated channels are reported only where the scene's geometry does not
+//! explain them:
+//! - **Horizontal-only content** ([`horizontal`]): under each hypothesis the converted
+//!   covariance is tested against the horizontal-plane identities of the SH (components with
+//!   n + |m| odd vanish, components of equal m are proportional with known ratios). When
+//!   they hold, `horizontal_only` is set, the predicted-empty channels go to
+//!   `silent_by_geometry` instead of `silent_channels`, and pairs inside one predicted
+//!   group are not duplicates. A channel that breaks its prediction keeps being reported.
+//! - **A few plane waves** ([`geometry`]): when the covariance, under any hypothesis, is
+//!   exactly K ≤ 3 plane waves over a floor 30 dB down (one eigenvalue gap, then K distinct
+//!   steering vectors inside the signal subspace), every strong correlation is geometry and
+//!   no pair is a duplicate. The floor may be quantisation noise: the tolerances scale
+//!   with it. When the strong components do not fit plane waves, the channel whose removal
+//!   makes them fit is named (with its same-level copy partner) rather than every
+//!   correlated pair.
+//!
+//! Known-absent channels (`absent_channels`, e.g. the components a mixed-order FuMa file
+//! does not carry) are never silent or duplicate; they are left out of the eigen-analysis
+//! and the steering vectors, and an order missing components is left out of the balance
+//! score (its `order_balance_db` entry is the energy of the components present).
+//!
+//! At first order the checker also asks whether the four channels are unconverted capsule
+//! signals ([`a_format`]), on the full-band covariance and, when given, the mid band too.
 
+pub mod a_format;
 mod channel_health;
+pub mod geometry;
+pub mod horizontal;
 mod steering_fit;
 
 pub use channel_health::{DUPLICATE_CORRELATION, SILENT_MEAN_SQUARE};
 
 use crate::engine::snapshot::{FormatCheck, HypothesisScore};
 use crate::format::{AmbiFormat, ConversionPlan};
-use crate::sh::{MAX_SH_ORDER, channel_count, n3d_gain, order_degree};
-use nalgebra::{DMatrix, SymmetricEigen};
+use crate::sh::{MAX_SH_ORDER, channel_count};
+use geometry::{Geometry, GeometryQuery};
+use horizontal::{HorizontalIdentities, HorizontalQuery, HorizontalReading};
 use std::fmt;
 use steering_fit::SteeringFitSearch;
 
@@ -96,6 +125,14 @@ pub struct FormatCheckInput<'a> {
     pub channel_mean_square: &'a [f64],
     /// Audio frames (samples per channel) that went into the covariance.
     pub frames_seen: u64,
+    /// Input channels known to be absent (zero-filled by the reader, e.g. the components a
+    /// mixed-order FuMa file does not carry), each below M; empty = none.
+    pub absent_channels: &'a [usize],
+    /// Covariance of the mid band (the engine's 250–4000 Hz by default), same layout and
+    /// units as `raw_covariance`; used only by the A-format test, which then asks for the
+    /// capsule pattern in this band as well (a close source's proximity effect can mimic it
+    /// at low frequencies only, see [`a_format`]). None = full band only.
+    pub mid_band_covariance: Option<&'a [f64]>,
 }
 
 /// Bad input to the format check (a caller bug or corrupt data), with the numbers.
@@ -113,6 +150,8 @@ pub enum FormatCheckError {
     },
     /// The covariance holds a NaN or infinity.
     NonFinite,
+    /// An absent-channel index is not a spatial channel.
+    AbsentChannelOutOfRange { channel: usize, channels: usize },
 }
 
 impl fmt::Display for FormatCheckError {
@@ -132,6 +171,10 @@ impl fmt::Display for FormatCheckError {
                 got,
             } => write!(f, "format check: {what} needs {expected} values, got {got}"),
             Self::NonFinite => write!(f, "format check: covariance holds NaN or infinity"),
+            Self::AbsentChannelOutOfRange { channel, channels } => write!(
+                f,
+                "format check: absent channel {channel} is not one of the {channels} spatial channels"
+            ),
         }
     }
 }
@@ -157,6 +200,7 @@ pub struct FormatChecker {
     order: usize,
     hypotheses: Vec<Hypothesis>,
     search: SteeringFitSearch,
+    identities: HorizontalIdentities,
     /// Converted covariance, (order+1)² squared, row-major, indexed by \[acn\]\[acn\].
     converted: Vec<f64>,
 }
@@ -164,9 +208,37 @@ pub struct FormatChecker {
 /// Evidence gathered under one hypothesis.
 struct Evidence {
     order_balance_db: Vec<f64>,
-    steering_fit: f64,
-    /// Share of the N3D-coordinate power held by the fitted eigenvectors above the floor.
-    directional_share: f64,
+    geometry: Geometry,
+    horizontal: HorizontalReading,
+    /// Orders whose components are all present, indexed \[order\].
+    complete: Vec<bool>,
+    /// Components present under this hypothesis, indexed \[acn\].
+    present: Vec<bool>,
+}
+
+/// Per-channel facts the check needs, indexed by [input channel].
+struct ChannelFacts {
+    absent: Vec<bool>,
+    silent: Vec<bool>,
+}
+
+impl ChannelFacts {
+    /// Present components under `plan`, indexed by \[acn\].
+    fn present(&self, plan: &ConversionPlan) -> Vec<bool> {
+        (0..plan.channels())
+            .map(|a| !self.absent[plan.source_channel(a)])
+            .collect()
+    }
+
+    /// Components whose input channel carries signal, indexed by \[acn\].
+    fn live(&self, plan: &ConversionPlan) -> Vec<bool> {
+        (0..plan.channels())
+            .map(|a| {
+                let input = plan.source_channel(a);
+                !self.absent[input] && !self.silent[input]
+            })
+            .collect()
+    }
 }
 
 impl FormatChecker {
@@ -193,6 +265,7 @@ impl FormatChecker {
             order,
             hypotheses,
             search: SteeringFitSearch::new(order),
+            identities: HorizontalIdentities::new(order),
             converted: vec![0.0; channels * channels],
         })
     }
@@ -211,11 +284,26 @@ impl FormatChecker {
     pub fn check(&mut self, input: &FormatCheckInput) -> Result<FormatCheck, FormatCheckError> {
         let channels = self.validate(input)?;
         let mean_square = &input.channel_mean_square[..channels];
-        let silent_channels = channel_health::silent_channels(mean_square);
+        let mut absent = vec![false; channels];
+        for &channel in input.absent_channels {
+            absent[channel] = true;
+        }
+        let silent_channels: Vec<usize> = channel_health::silent_channels(mean_square)
+            .into_iter()
+            .filter(|&c| !absent[c])
+            .collect();
+        let mut silent = vec![false; channels];
+        for &channel in &silent_channels {
+            silent[channel] = true;
+        }
+        let facts = ChannelFacts { absent, silent };
         let mut result = FormatCheck {
             silent_channels,
             ..FormatCheck::default()
         };
+        let excluded: Vec<usize> = (0..channels)
+            .filter(|&c| facts.absent[c] || facts.silent[c])
+            .collect();
 
         // Balance under the assumed format gives the effective order (ACN/SN3D if the
         // assumed format does not exist at this order).
@@ -228,11 +316,8 @@ impl FormatChecker {
         let w_power = input.raw_covariance[w_channel * channels + w_channel];
         if w_power <= 0.0 {
             // Without W nothing is relative to anything; only channel health is reported.
-            result.duplicate_channels = channel_health::duplicate_pairs(
-                input.raw_covariance,
-                channels,
-                &result.silent_channels,
-            );
+            result.duplicate_channels =
+                channel_health::duplicate_pairs(input.raw_covariance, channels, &excluded);
             return Ok(result);
         }
         self.convert(assumed_index, input.raw_covariance);
@@ -248,21 +333,45 @@ impl FormatChecker {
         let mut evidence = Vec::with_capacity(self.hypotheses.len());
         for index in 0..self.hypotheses.len() {
             self.convert(index, input.raw_covariance);
-            let mut order_balance_db = self.order_balance_db(self.order);
-            let (steering_fit, directional_share) = self.steering_fit(effective_order);
-            order_balance_db.truncate(self.order + 1);
+            let plan = &self.hypotheses[index].plan;
+            let present = facts.present(plan);
+            let live = facts.live(plan);
+            let complete = (0..=self.order)
+                .map(|n| (n * n..(n + 1) * (n + 1)).all(|a| present[a]))
+                .collect();
+            let horizontal = self.identities.judge(&HorizontalQuery {
+                covariance: &self.converted,
+                plan,
+                present: &present,
+                live: &live,
+                effective_order,
+            });
+            let geometry = geometry::analyse(
+                &mut self.search,
+                &GeometryQuery {
+                    covariance: &self.converted,
+                    full_order: self.order,
+                    order: effective_order,
+                    present: &present,
+                },
+            );
             evidence.push(Evidence {
-                order_balance_db,
-                steering_fit,
-                directional_share,
+                order_balance_db: self.order_balance_db(self.order),
+                geometry,
+                horizontal,
+                complete,
+                present,
             });
         }
 
         // Log-scores and softmax.
-        let best_fit = evidence.iter().map(|e| e.steering_fit).fold(0.0, f64::max);
+        let best_fit = evidence
+            .iter()
+            .map(|e| e.geometry.steering_fit)
+            .fold(0.0, f64::max);
         let directionality = evidence
             .iter()
-            .map(|e| e.directional_share)
+            .map(|e| e.geometry.directional_share)
             .fold(0.0, f64::max);
         let use_fit = effective_order >= 2;
         let log_scores: Vec<f64> = self
@@ -270,19 +379,12 @@ impl FormatChecker {
             .iter()
             .zip(&evidence)
             .map(|(hypothesis, e)| {
-                let balance_penalty: f64 = e.order_balance_db[1..=effective_order]
-                    .iter()
-                    .map(|&db| {
-                        let sigma = if db > 0.0 {
-                            BALANCE_SIGMA_EXCESS_DB
-                        } else {
-                            BALANCE_SIGMA_DEFICIT_DB
-                        };
-                        0.5 * (db / sigma).powi(2)
-                    })
+                let balance_penalty: f64 = (1..=effective_order)
+                    .filter(|&n| e.complete[n])
+                    .map(|n| balance_penalty(e.order_balance_db[n]))
                     .sum();
                 let fit_term = if use_fit {
-                    STEERING_FIT_NATS * directionality * (e.steering_fit - best_fit)
+                    STEERING_FIT_NATS * directionality * (e.geometry.steering_fit - best_fit)
                 } else {
                     0.0
                 };
@@ -295,12 +397,12 @@ impl FormatChecker {
         result.hypotheses = self
             .hypotheses
             .iter()
-            .zip(evidence)
+            .zip(&evidence)
             .zip(&weights)
             .map(|((hypothesis, e), w)| HypothesisScore {
                 format: hypothesis.format,
-                order_balance_db: e.order_balance_db,
-                steering_fit: e.steering_fit,
+                order_balance_db: e.order_balance_db.clone(),
+                steering_fit: e.geometry.steering_fit,
                 probability: w / total,
             })
             .collect();
@@ -317,22 +419,146 @@ impl FormatChecker {
             result.confidence = best.probability;
         }
 
-        // A single plane wave correlates every channel with every other by physics; that is
-        // not a duplicated channel. Recognised by a near-perfect steering fit under the
-        // assumed format together with every live pair being correlated.
-        let pairs = channel_health::duplicate_pairs(
-            input.raw_covariance,
-            channels,
-            &result.silent_channels,
-        );
-        let live = channels - result.silent_channels.len();
-        let all_pairs_correlated = live >= 2 && pairs.len() == live * (live - 1) / 2;
-        let single_plane_wave =
-            all_pairs_correlated && result.hypotheses[assumed_index].steering_fit > 0.999;
-        if !single_plane_wave {
-            result.duplicate_channels = pairs;
+        let culprits = self.copied_into_plane_waves(&evidence, input, &excluded, effective_order);
+        self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
+        if let Some(culprits) = culprits {
+            restrict_to_culprits(&mut result.duplicate_channels, &culprits, input, channels);
+        }
+
+        if result.ready && self.order == 1 && input.absent_channels.is_empty() {
+            let best_b = evidence
+                .iter()
+                .map(|e| {
+                    let balance = if e.complete[1] {
+                        e.order_balance_db[1]
+                    } else {
+                        0.0
+                    };
+                    a_format::plausibility(balance, &e.geometry)
+                })
+                .fold(f64::NEG_INFINITY, f64::max);
+            let full_band = a_format::capsule_reading(&mut self.search, input.raw_covariance);
+            let mid_band_agrees = input
+                .mid_band_covariance
+                .is_none_or(|mid| a_format::capsule_reading(&mut self.search, mid).is_some());
+            result.a_format_suspected = mid_band_agrees
+                && full_band
+                    .is_some_and(|score| score >= best_b - a_format::PLAUSIBILITY_MARGIN_NATS);
         }
         Ok(result)
+    }
+
+    /// Moves silent channels that horizontal content explains to `silent_by_geometry`, and
+    /// keeps only the correlated pairs that no geometry explains.
+    fn apply_geometry(
+        &self,
+        result: &mut FormatCheck,
+        evidence: &[Evidence],
+        assumed_index: usize,
+        input: &FormatCheckInput,
+        excluded: &[usize],
+    ) {
+        let channels = channel_count(self.order);
+        // The horizontal reading that holds with the fewest broken predictions, then the
+        // smallest residual; the assumed format wins ties.
+        let mut order_of_trial: Vec<usize> = (0..evidence.len()).collect();
+        order_of_trial.retain(|&i| i != assumed_index);
+        order_of_trial.insert(0, assumed_index);
+        let mut best: Option<usize> = None;
+        for index in order_of_trial {
+            let reading = &evidence[index].horizontal;
+            if !reading.horizontal {
+                continue;
+            }
+            let better = best.is_none_or(|b| {
+                let held = &evidence[b].horizontal;
+                (reading.violations, reading.mismatch) < (held.violations, held.mismatch)
+            });
+            if better {
+                best = Some(index);
+            }
+        }
+        let mut pairs = channel_health::duplicate_pairs(input.raw_covariance, channels, excluded);
+        if let Some(index) = best {
+            let plan = &self.hypotheses[index].plan;
+            let reading = &evidence[index].horizontal;
+            result.horizontal_only = true;
+            let expected: Vec<usize> = reading
+                .zero_held
+                .iter()
+                .map(|&a| plan.source_channel(a))
+                .collect();
+            result.silent_by_geometry = result
+                .silent_channels
+                .iter()
+                .copied()
+                .filter(|c| expected.contains(c))
+                .collect();
+            result.silent_channels.retain(|c| !expected.contains(c));
+            let group_of = |input_channel: usize| {
+                reading.groups.iter().position(|group| {
+                    group
+                        .iter()
+                        .any(|&a| plan.source_channel(a) == input_channel)
+                })
+            };
+            pairs.retain(|&(i, j)| group_of(i).is_none() || group_of(i) != group_of(j));
+        }
+        if evidence.iter().any(|e| e.geometry.plane_waves.is_some()) {
+            pairs.clear();
+        }
+        result.duplicate_channels = pairs;
+    }
+
+    /// When the covariance is a few strong components that do *not* fit plane waves under
+    /// any hypothesis, the input channels whose removal makes them fit (a channel copied or
+    /// corrupted inside a one-to-three-source scene), if any. Costs one eigen-analysis per
+    /// live channel and hypothesis, only in that case.
+    fn copied_into_plane_waves(
+        &mut self,
+        evidence: &[Evidence],
+        input: &FormatCheckInput,
+        excluded: &[usize],
+        effective_order: usize,
+    ) -> Option<Vec<usize>> {
+        if evidence.iter().any(|e| e.geometry.plane_waves.is_some())
+            || evidence.iter().all(|e| e.geometry.low_rank.is_none())
+        {
+            return None;
+        }
+        for (index, e) in evidence.iter().enumerate() {
+            if e.geometry.low_rank.is_none() {
+                continue;
+            }
+            self.convert(index, input.raw_covariance);
+            let plan = &self.hypotheses[index].plan;
+            let mut culprits = Vec::new();
+            for acn in 0..channel_count(effective_order) {
+                let channel = plan.source_channel(acn);
+                if excluded.binary_search(&channel).is_ok() || !e.present[acn] {
+                    continue;
+                }
+                let mut present = e.present.clone();
+                present[acn] = false;
+                let masked = geometry::analyse(
+                    &mut self.search,
+                    &GeometryQuery {
+                        covariance: &self.converted,
+                        full_order: self.order,
+                        order: effective_order,
+                        present: &present,
+                    },
+                );
+                if masked.plane_waves.is_some() {
+                    culprits.push(channel);
+                }
+            }
+            if !culprits.is_empty() {
+                culprits.sort_unstable();
+                return Some(culprits);
+            }
+        }
+        None
     }
 
     fn validate(&self, input: &FormatCheckInput) -> Result<usize, FormatCheckError> {
@@ -343,12 +569,23 @@ impl FormatChecker {
             });
         }
         let channels = channel_count(self.order);
-        if input.raw_covariance.len() != channels * channels {
-            return Err(FormatCheckError::WrongLength {
-                what: "covariance",
-                expected: channels * channels,
-                got: input.raw_covariance.len(),
-            });
+        for (what, covariance) in [
+            ("covariance", Some(input.raw_covariance)),
+            ("mid-band covariance", input.mid_band_covariance),
+        ] {
+            let Some(covariance) = covariance else {
+                continue;
+            };
+            if covariance.len() != channels * channels {
+                return Err(FormatCheckError::WrongLength {
+                    what,
+                    expected: channels * channels,
+                    got: covariance.len(),
+                });
+            }
+            if covariance.iter().any(|v| !v.is_finite()) {
+                return Err(FormatCheckError::NonFinite);
+            }
         }
         if input.channel_mean_square.len() < channels {
             return Err(FormatCheckError::WrongLength {
@@ -357,8 +594,8 @@ impl FormatChecker {
                 got: input.channel_mean_square.len(),
             });
         }
-        if input.raw_covariance.iter().any(|v| !v.is_finite()) {
-            return Err(FormatCheckError::NonFinite);
+        if let Some(&channel) = input.absent_channels.iter().find(|&&c| c >= channels) {
+            return Err(FormatCheckError::AbsentChannelOutOfRange { channel, channels });
         }
         Ok(channels)
     }
@@ -390,59 +627,39 @@ impl FormatChecker {
             })
             .collect()
     }
+}
 
-    /// Eigenvalue-weighted steering fit of `converted` over orders 0..=`order`, and the
-    /// share of power the fitted eigenvectors hold above the eigenvalue floor.
-    fn steering_fit(&mut self, order: usize) -> (f64, f64) {
-        if order == 0 {
-            return (0.0, 0.0);
-        }
-        let full = channel_count(self.order);
-        let channels = channel_count(order);
-        let gains: Vec<f64> = (0..channels)
-            .map(|acn| n3d_gain(order_degree(acn).0))
-            .collect();
-        let n3d = DMatrix::from_fn(channels, channels, |a, b| {
-            gains[a] * gains[b] * self.converted[a * full + b]
-        });
-        let trace = n3d.trace();
-        let Some(eigen) = SymmetricEigen::try_new(n3d, f64::EPSILON, 0) else {
-            return (0.0, 0.0);
-        };
-        let mut by_size: Vec<usize> = (0..channels).collect();
-        by_size.sort_by(|&a, &b| eigen.eigenvalues[b].total_cmp(&eigen.eigenvalues[a]));
-        let largest = eigen.eigenvalues[by_size[0]];
-        if largest.is_nan() || largest <= 0.0 || trace.is_nan() || trace <= 0.0 {
-            return (0.0, 0.0);
-        }
-        // Floor of an isotropic diffuse part: white in N3D coordinates, so the median
-        // eigenvalue estimates it while fewer than half the eigenvalues are sources.
-        let floor = eigen.eigenvalues[by_size[channels / 2]].max(0.0);
-        let range = 10f64.powf(-EIGENVALUE_RANGE_DB / 10.0);
-        let mut weighted_fit = 0.0;
-        let mut weight_total = 0.0;
-        let mut top_fit = 0.0;
-        let mut vector = vec![0.0; channels];
-        for (rank, &k) in by_size.iter().take(MAX_FITTED_EIGENVECTORS).enumerate() {
-            let value = eigen.eigenvalues[k];
-            if rank > 0 && value < largest * range {
-                break;
-            }
-            vector.copy_from_slice(eigen.eigenvectors.column(k).as_slice());
-            let (fit, _) = self.search.fit(&vector, order);
-            if rank == 0 {
-                top_fit = fit;
-            }
-            let weight = (value - floor).max(0.0);
-            weighted_fit += weight * fit;
-            weight_total += weight;
-        }
-        if weight_total > 0.0 {
-            (weighted_fit / weight_total, weight_total / trace)
-        } else {
-            (top_fit, 0.0)
-        }
+/// Keeps only the pairs that involve a culprit channel and, where a culprit has partners of
+/// the same level (an exact or inverted copy), only those partners.
+fn restrict_to_culprits(
+    pairs: &mut Vec<(usize, usize)>,
+    culprits: &[usize],
+    input: &FormatCheckInput,
+    channels: usize,
+) {
+    let power = |c: usize| input.raw_covariance[c * channels + c];
+    let same_level =
+        |a: usize, b: usize| (power(a) - power(b)).abs() <= 1e-3 * power(a).max(power(b));
+    pairs.retain(|&(i, j)| culprits.contains(&i) || culprits.contains(&j));
+    let copies: Vec<(usize, usize)> = pairs
+        .iter()
+        .copied()
+        .filter(|&(i, j)| same_level(i, j))
+        .collect();
+    if !copies.is_empty() {
+        *pairs = copies;
     }
+}
+
+/// Nats of one order's balance against the 0 dB of SN3D (asymmetric spread, see
+/// [`score_constants`]).
+fn balance_penalty(db: f64) -> f64 {
+    let sigma = if db > 0.0 {
+        BALANCE_SIGMA_EXCESS_DB
+    } else {
+        BALANCE_SIGMA_DEFICIT_DB
+    };
+    0.5 * (db / sigma).powi(2)
 }
 
 /// Convenience form of [`FormatChecker::check`]: builds a checker (allocates) and runs it.

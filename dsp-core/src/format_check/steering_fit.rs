@@ -55,33 +55,42 @@ impl SteeringFitSearch {
     /// Fit of the unit vector `vector` (N3D coordinates, indexed by \[acn\], orders
     /// 0..=`order`, `order` ≤ the search's order) to the best plane-wave steering vector, in
     /// [0, 1], with the unit vector [x, y, z] of the best direction.
+    #[cfg(test)]
     pub(crate) fn fit(&mut self, vector: &[f64], order: usize) -> (f64, [f64; 3]) {
-        let channels = channel_count(order);
+        self.fit_subspace(&SubspaceQuery {
+            basis: vector,
+            rank: 1,
+            order,
+            present: None,
+            avoid: &[],
+            avoid_cos: 1.0,
+        })
+    }
+
+    /// Largest share of a plane-wave steering vector that lies in a subspace: max over d of
+    /// Σ_k (u_kᵀŷ(d))² with ŷ(d) the unit-norm N3D steering vector restricted to the present
+    /// components, and the unit vector of that d. Directions within the cone
+    /// `query.avoid_cos` of any direction in `query.avoid` are skipped, so that repeated calls
+    /// find distinct plane waves. Returns (0, front) if every grid point is avoided.
+    pub(crate) fn fit_subspace(&mut self, query: &SubspaceQuery) -> (f64, [f64; 3]) {
+        let channels = channel_count(query.order);
         let full_channels = channel_count(self.order);
-        // ‖D·y(d)‖² over orders 0..=order is Σ(2n+1) = (order+1)² (addition theorem).
-        let norm_sq = channels as f64;
-        let mut best_point = 0;
-        let mut best_dot_sq = -1.0;
-        for (point, steering) in self.grid_n3d.chunks_exact(full_channels).enumerate() {
-            let dot: f64 = steering[..channels]
-                .iter()
-                .zip(&vector[..channels])
-                .map(|(a, b)| a * b)
-                .sum();
-            if dot * dot > best_dot_sq {
-                best_dot_sq = dot * dot;
-                best_point = point;
+        let mut best_point = None;
+        let mut best = -1.0;
+        for steering in self.grid_n3d.chunks_exact(full_channels) {
+            let unit = self.unit_of(steering);
+            if is_avoided(unit, query) {
+                continue;
+            }
+            let value = subspace_share(&steering[..channels], query);
+            if value > best {
+                best = value;
+                best_point = Some(unit);
             }
         }
-        // Start of the local search: the grid point's unit vector from its W/Y/Z/X values.
-        let steering = &self.grid_n3d[best_point * full_channels..];
-        let mut at = if self.order >= 1 {
-            let g1 = self.n3d_gains[1];
-            normalised([steering[3] / g1, steering[1] / g1, steering[2] / g1])
-        } else {
-            [1.0, 0.0, 0.0]
+        let Some(mut at) = best_point else {
+            return (0.0, [1.0, 0.0, 0.0]);
         };
-        let mut best = best_dot_sq / norm_sq;
         let mut step = self.grid_step_rad;
         while step > FINAL_STEP_RAD {
             let (e1, e2) = tangent_basis(at);
@@ -92,7 +101,10 @@ impl SteeringFitSearch {
                     at[1] + step * (a * e1[1] + b * e2[1]),
                     at[2] + step * (a * e1[2] + b * e2[2]),
                 ]);
-                let value = self.fit_at(vector, order, candidate);
+                if is_avoided(candidate, query) {
+                    continue;
+                }
+                let value = self.fit_at(query, candidate);
                 if value > best {
                     best = value;
                     at = candidate;
@@ -106,20 +118,74 @@ impl SteeringFitSearch {
         (best.clamp(0.0, 1.0), at)
     }
 
-    fn fit_at(&mut self, vector: &[f64], order: usize, unit: [f64; 3]) -> f64 {
-        let channels = channel_count(order);
+    /// Unit vector of a grid point from its N3D W/Y/Z/X values.
+    fn unit_of(&self, steering: &[f64]) -> [f64; 3] {
+        if self.order >= 1 {
+            let g1 = self.n3d_gains[1];
+            normalised([steering[3] / g1, steering[1] / g1, steering[2] / g1])
+        } else {
+            [1.0, 0.0, 0.0]
+        }
+    }
+
+    fn fit_at(&mut self, query: &SubspaceQuery, unit: [f64; 3]) -> f64 {
+        let channels = channel_count(query.order);
         let azimuth_rad = unit[1].atan2(unit[0]);
         let elevation_rad = unit[2].clamp(-1.0, 1.0).asin();
         self.evaluator
             .eval_rad(azimuth_rad, elevation_rad, &mut self.sh_values);
-        let dot: f64 = self.sh_values[..channels]
-            .iter()
-            .zip(&self.n3d_gains)
-            .zip(&vector[..channels])
-            .map(|((y, g), v)| y * g * v)
-            .sum();
-        dot * dot / channels as f64
+        for (y, g) in self.sh_values[..channels].iter_mut().zip(&self.n3d_gains) {
+            *y *= g;
+        }
+        subspace_share(&self.sh_values[..channels], query)
     }
+}
+
+/// What [`SteeringFitSearch::fit_subspace`] looks for.
+pub(crate) struct SubspaceQuery<'a> {
+    /// `rank` orthonormal vectors of (order+1)² N3D values each, one after the other; zero
+    /// in components that are not present.
+    pub basis: &'a [f64],
+    pub rank: usize,
+    pub order: usize,
+    /// Components that exist, indexed by \[acn\]; None = all.
+    pub present: Option<&'a [bool]>,
+    /// Unit vectors of directions already found.
+    pub avoid: &'a [[f64; 3]],
+    /// Cosine of the half-angle of the cone around each avoided direction.
+    pub avoid_cos: f64,
+}
+
+fn is_avoided(unit: [f64; 3], query: &SubspaceQuery) -> bool {
+    query
+        .avoid
+        .iter()
+        .any(|a| a[0] * unit[0] + a[1] * unit[1] + a[2] * unit[2] > query.avoid_cos)
+}
+
+/// Σ_k (u_kᵀ s)² / ‖s‖² over the present components of the N3D steering vector `steering`.
+fn subspace_share(steering: &[f64], query: &SubspaceQuery) -> f64 {
+    let channels = steering.len();
+    let norm_sq: f64 = match query.present {
+        // ‖D·y(d)‖² over orders 0..=order is Σ(2n+1) = (order+1)² (addition theorem).
+        None => channels as f64,
+        Some(present) => steering
+            .iter()
+            .zip(present)
+            .filter(|&(_, &p)| p)
+            .map(|(s, _)| s * s)
+            .sum(),
+    };
+    if norm_sq <= 0.0 {
+        return 0.0;
+    }
+    let mut share = 0.0;
+    for k in 0..query.rank {
+        let vector = &query.basis[k * channels..(k + 1) * channels];
+        let dot: f64 = steering.iter().zip(vector).map(|(a, b)| a * b).sum();
+        share += dot * dot;
+    }
+    share / norm_sq
 }
 
 fn normalised(v: [f64; 3]) -> [f64; 3] {
