@@ -774,3 +774,58 @@ fn scan_demo_prints_a_summary() {
     assert_eq!(doc["input"]["demo"], true);
     assert!(doc["input"]["path"].is_null());
 }
+
+#[test]
+fn amb_file_with_a_fuma_horizontal_set_is_read_as_fuma_at_second_order() {
+    // A 5-channel AMB B-format file (FuMa W X Y U V: the second-order horizontal set of the
+    // Furse-Malham scheme) holding two sources on the horizon. Declared B-format → read as FuMa
+    // without --assume; the set is analysed as second order with R, S, T and Z absent (not silent).
+    // Read as first order plus an extra channel instead, U would be taken as Z and the sources
+    // would rise off the horizon.
+    let dir = tmp();
+    let truth = [Direction::new(30.0, 0.0), Direction::new(-120.0, 0.0)];
+    let full = encode(
+        2,
+        AmbiFormat::FUMA,
+        &[(truth[0], 0.3), (truth[1], 0.2)],
+        RATE as usize,
+    );
+    // FuMa letter order W X Y Z R S T U V: keep W X Y U V.
+    let planes: Vec<Vec<f32>> = [0, 1, 2, 7, 8].iter().map(|&k| full[k].clone()).collect();
+    let path = dir.path().join("horizontal.amb");
+    let mut writer = WavWriter::create_b_format(
+        &path,
+        spec(5, 32, SampleFormat::Float),
+        WriterOptions::default(),
+    )
+    .unwrap();
+    let refs: Vec<&[f32]> = planes.iter().map(|p| p.as_slice()).collect();
+    writer.write_planar(&refs).unwrap();
+    writer.finalize().unwrap();
+
+    let doc = scan_json(&path, &[]);
+    assert_eq!(doc["assumed"]["ordering"], "fuma");
+    assert_eq!(doc["assumed"]["source"], "metadata");
+    assert_eq!(doc["assumed"]["order"], 2);
+    assert_eq!(doc["input"]["declares_b_format"], true);
+    assert_eq!(doc["input"]["mixed_order_set"], "WXYUV");
+    let rows: Vec<u64> = doc["channels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["index"].as_u64().unwrap())
+        .collect();
+    assert_eq!(rows, [0, 1, 2, 3, 4], "one row per file channel");
+    assert_sources(&doc, &truth, "WXYUV");
+    let findings = doc["findings"].as_array().unwrap();
+    assert!(
+        findings.iter().all(|x| x["severity"] == "info"),
+        "{findings:?}"
+    );
+    assert!(!findings.iter().any(|x| x["code"] == "silent-channel"));
+
+    // --assume wins over the declaration.
+    let doc = scan_json(&path, &["--assume", "acn-sn3d"]);
+    assert_eq!(doc["assumed"]["source"], "option");
+    assert_eq!(doc["assumed"]["order"], 1);
+}

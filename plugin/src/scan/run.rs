@@ -198,7 +198,7 @@ enum Source {
     File {
         reader: WavReader<std::io::BufReader<std::fs::File>>,
         /// For a FuMa mixed-order set: the expander and the file-order buffers it reads from.
-        mixed: Option<(MixedOrderExpander, Vec<Vec<f32>>)>,
+        mixed: Option<Box<(MixedOrderExpander, Vec<Vec<f32>>)>>,
     },
     Demo {
         scene: Box<DemoScene>,
@@ -211,11 +211,12 @@ impl Source {
         match self {
             Source::File { reader, mixed } => {
                 let unreadable = |e| CliError::input(format!("cannot read '{name}': {e}"));
-                let Some((expander, file_buffers)) = mixed else {
+                let Some(mixed) = mixed else {
                     return reader
                         .read_planar(buffers, BLOCK_FRAMES)
                         .map_err(unreadable);
                 };
+                let (expander, file_buffers) = &mut **mixed;
                 let n = reader
                     .read_planar(file_buffers, BLOCK_FRAMES)
                     .map_err(unreadable)?;
@@ -274,8 +275,8 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
             }
             let channels = spec.channels as usize;
             let mixed = MixedOrderExpander::for_stream(options.assumed, channels)
-                .map(|e| (e, vec![Vec::with_capacity(BLOCK_FRAMES); channels]));
-            let mixed_order_set = mixed.as_ref().map(|(e, _)| e.set().letters());
+                .map(|e| Box::new((e, vec![Vec::with_capacity(BLOCK_FRAMES); channels])));
+            let mixed_order_set = mixed.as_ref().map(|m| m.0.set().letters());
             let info = InputInfo {
                 path: Some(path.clone()),
                 description: format!(
@@ -359,9 +360,8 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     let name = info.display_name();
     let expander = match &source {
         Source::File {
-            mixed: Some((e, _)),
-            ..
-        } => Some(*e),
+            mixed: Some(mixed), ..
+        } => Some(mixed.0),
         _ => None,
     };
     let analysed_channels = expander.map_or(info.channels, |e| e.output_channels());
@@ -548,7 +548,7 @@ pub fn expected_balance_db(
 fn to_file_channels(
     expander: &MixedOrderExpander,
     channels: &mut Vec<ChannelSummary>,
-    findings: &mut Vec<Finding>,
+    findings: &mut [Finding],
 ) {
     channels.retain_mut(|c| match expander.source_channel(c.input_index) {
         Some(file_channel) => {
