@@ -39,6 +39,10 @@ pub use crate::plugin::PluginState;
 pub use crate::plugin::{Plugin, ProcessStatus, TaskExecutor};
 #[cfg(feature = "editor")]
 pub use crate::plugin::{TrackColor, TrackInfo};
+// FIELDGLASS PATCH: ambisonic main buses.
+pub use crate::wrapper::ambisonic::{
+    AmbisonicBuses, AmbisonicConfig, AmbisonicNormalization, AmbisonicOrdering,
+};
 pub use crate::wrapper::clap::features::ClapFeature;
 pub use crate::wrapper::clap::{ClapPlugin, PolyModulationConfig};
 #[cfg(feature = "vst3")]

@@ -43,6 +43,13 @@ pub trait ClapPlugin: Plugin {
     /// that the host can use to provide better hardware mapping for a plugin. See the linked
     /// extension for more information.
     fn remote_controls(&self, context: &mut impl RemoteControlsContext) {}
+
+    /// FIELDGLASS PATCH: return an object to declare the main ports ambisonic (port type
+    /// `ambisonic` for (N+1)² channels, and the `clap.ambisonic` extension). Called once when the
+    /// wrapper is created.
+    fn ambisonic_buses(&self) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
+        None
+    }
 }
 
 /// Configuration for the plugin's polyphonic modulation options, if it supports .

@@ -36,6 +36,13 @@ pub trait Vst3Plugin: Plugin {
     /// [`VST3_CLASS_ID`][Self::VST3_CLASS_ID`] in the correct order for the current platform so
     /// projects and presets can be shared between platforms. This should not be overridden.
     const PLATFORM_VST3_CLASS_ID: [u8; 16] = swap_vst3_uid_byte_order(Self::VST3_CLASS_ID);
+
+    /// FIELDGLASS PATCH: return an object to report main buses of (N+1)² channels as the SDK's
+    /// `kAmbi<N>OrderACN` arrangements and hear whether the host chose them. Called once when
+    /// the wrapper is created.
+    fn ambisonic_buses(&self) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
+        None
+    }
 }
 
 #[cfg(not(target_os = "windows"))]

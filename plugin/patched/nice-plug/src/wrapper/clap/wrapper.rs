@@ -13,6 +13,14 @@ use clap_sys::events::{
     clap_event_note_expression, clap_event_param_gesture, clap_event_param_mod,
     clap_event_param_value, clap_event_transport, clap_input_events, clap_output_events,
 };
+// FIELDGLASS PATCH: ambisonic main ports.
+use clap_sys::ext::ambisonic::{
+    CLAP_AMBISONIC_NORMALIZATION_MAXN, CLAP_AMBISONIC_NORMALIZATION_N2D,
+    CLAP_AMBISONIC_NORMALIZATION_N3D, CLAP_AMBISONIC_NORMALIZATION_SN2D,
+    CLAP_AMBISONIC_NORMALIZATION_SN3D, CLAP_AMBISONIC_ORDERING_ACN, CLAP_AMBISONIC_ORDERING_FUMA,
+    CLAP_EXT_AMBISONIC, CLAP_EXT_AMBISONIC_COMPAT, CLAP_PORT_AMBISONIC, clap_ambisonic_config,
+    clap_plugin_ambisonic,
+};
 use clap_sys::ext::audio_ports::{
     CLAP_AUDIO_PORT_IS_MAIN, CLAP_EXT_AUDIO_PORTS, CLAP_PORT_MONO, CLAP_PORT_STEREO,
     clap_audio_port_info, clap_plugin_audio_ports,
@@ -98,6 +106,10 @@ use super::descriptor::PluginDescriptor;
 use super::util::ClapPtr;
 use crate::event_loop::{BackgroundThread, EventLoop, MainThreadExecutor, TASK_QUEUE_CAPACITY};
 use crate::util::permit_alloc;
+// FIELDGLASS PATCH: ambisonic main ports.
+use crate::wrapper::ambisonic::{
+    AmbisonicBuses, AmbisonicConfig, AmbisonicNormalization, AmbisonicOrdering, ambisonic_order,
+};
 use crate::wrapper::clap::ClapPlugin;
 use crate::wrapper::clap::context::RemoteControlPages;
 #[cfg(feature = "editor")]
@@ -200,6 +212,11 @@ pub struct Wrapper<P: ClapPlugin> {
     _plugin_descriptor: Box<PluginDescriptor>,
 
     clap_plugin_audio_ports: clap_plugin_audio_ports,
+
+    /// FIELDGLASS PATCH: the plugin's answer to `ClapPlugin::ambisonic_buses()`, and the
+    /// `clap.ambisonic` vtable offered when it is `Some`.
+    ambisonic_buses: Option<Arc<dyn AmbisonicBuses>>,
+    clap_plugin_ambisonic: clap_plugin_ambisonic,
 
     #[cfg(feature = "editor")]
     clap_plugin_gui: clap_plugin_gui,
@@ -490,6 +507,8 @@ impl<P: ClapPlugin> Wrapper<P> {
     pub unsafe fn new(host_callback: *const clap_host) -> Arc<Self> {
         let mut plugin = P::default();
         let task_executor = Mutex::new(plugin.task_executor());
+        // FIELDGLASS PATCH: asked once, like `params()`.
+        let ambisonic_buses = plugin.ambisonic_buses();
 
         // This is used to allow the plugin to restore preset data from its editor, see the comment
         // on `Self::updated_state_sender`
@@ -658,6 +677,12 @@ impl<P: ClapPlugin> Wrapper<P> {
             clap_plugin_audio_ports: clap_plugin_audio_ports {
                 count: Some(Self::ext_audio_ports_count),
                 get: Some(Self::ext_audio_ports_get),
+            },
+
+            ambisonic_buses,
+            clap_plugin_ambisonic: clap_plugin_ambisonic {
+                is_config_supported: Some(Self::ext_ambisonic_is_config_supported),
+                get_config: Some(Self::ext_ambisonic_get_config),
             },
 
             #[cfg(feature = "editor")]
@@ -2335,6 +2360,13 @@ impl<P: ClapPlugin> Wrapper<P> {
             &wrapper.clap_plugin_audio_ports_config as *const _ as *const c_void
         } else if id == CLAP_EXT_AUDIO_PORTS {
             &wrapper.clap_plugin_audio_ports as *const _ as *const c_void
+        } else if id == CLAP_EXT_AMBISONIC || id == CLAP_EXT_AMBISONIC_COMPAT {
+            // FIELDGLASS PATCH: offered only to plugins that declare ambisonic main ports.
+            if wrapper.ambisonic_buses.is_some() {
+                &wrapper.clap_plugin_ambisonic as *const _ as *const c_void
+            } else {
+                std::ptr::null()
+            }
         } else if id == CLAP_EXT_LATENCY {
             &wrapper.clap_plugin_latency as *const _ as *const c_void
         } else if id == CLAP_EXT_NOTE_PORTS {
@@ -2403,8 +2435,8 @@ impl<P: ClapPlugin> Wrapper<P> {
     ) -> bool {
         check_null_ptr!(false, plugin, unsafe { (*plugin).plugin_data }, config);
 
-        // This function directly maps to `P::AUDIO_IO_LAYOUTS`, and we thus also don't need to
-        // access the `wrapper` instance
+        // FIELDGLASS PATCH: the wrapper says whether main ports are ambisonic.
+        let wrapper = unsafe { &*((*plugin).plugin_data as *const Self) };
         match P::AUDIO_IO_LAYOUTS.get(index as usize) {
             Some(audio_io_layout) => {
                 let name = audio_io_layout.name();
@@ -2412,16 +2444,11 @@ impl<P: ClapPlugin> Wrapper<P> {
                 let main_input_channels = audio_io_layout.main_input_channels.map(NonZeroU32::get);
                 let main_output_channels =
                     audio_io_layout.main_output_channels.map(NonZeroU32::get);
-                let input_port_type = match main_input_channels {
-                    Some(1) => CLAP_PORT_MONO.as_ptr(),
-                    Some(2) => CLAP_PORT_STEREO.as_ptr(),
-                    _ => std::ptr::null(),
-                };
-                let output_port_type = match main_output_channels {
-                    Some(1) => CLAP_PORT_MONO.as_ptr(),
-                    Some(2) => CLAP_PORT_STEREO.as_ptr(),
-                    _ => std::ptr::null(),
-                };
+                // FIELDGLASS PATCH: one rule for both ports, ambisonic included.
+                let input_port_type = main_input_channels
+                    .map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
+                let output_port_type = main_output_channels
+                    .map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
 
                 unsafe { *config = std::mem::zeroed() };
 
@@ -2571,10 +2598,15 @@ impl<P: ClapPlugin> Wrapper<P> {
             (n, false) => current_audio_io_layout.aux_output_ports[n as usize].get(),
         };
 
-        let port_type = match channel_count {
-            1 => CLAP_PORT_MONO.as_ptr(),
-            2 => CLAP_PORT_STEREO.as_ptr(),
-            _ => std::ptr::null(),
+        // FIELDGLASS PATCH: main ports may be ambisonic; auxiliary ports keep the old rule.
+        let port_type = if is_main_port {
+            wrapper.main_port_type(channel_count)
+        } else {
+            match channel_count {
+                1 => CLAP_PORT_MONO.as_ptr(),
+                2 => CLAP_PORT_STEREO.as_ptr(),
+                _ => std::ptr::null(),
+            }
         };
 
         unsafe { *info = std::mem::zeroed() };
@@ -3547,4 +3579,107 @@ unsafe fn query_host_extension<T>(
     } else {
         None
     }
+}
+
+/// FIELDGLASS PATCH (this whole impl block is new): ambisonic main ports and the
+/// `clap.ambisonic` extension.
+impl<P: ClapPlugin> Wrapper<P> {
+    /// Port type of a main port: `ambisonic` for (N+1)² channels if the plugin declared
+    /// ambisonic buses, else mono, stereo or none as before.
+    fn main_port_type(&self, channel_count: u32) -> *const c_char {
+        match channel_count {
+            1 => CLAP_PORT_MONO.as_ptr(),
+            2 => CLAP_PORT_STEREO.as_ptr(),
+            n if self.ambisonic_buses.is_some() && ambisonic_order(n).is_some() => {
+                CLAP_PORT_AMBISONIC.as_ptr()
+            }
+            _ => std::ptr::null(),
+        }
+    }
+
+    unsafe extern "C" fn ext_ambisonic_is_config_supported(
+        plugin: *const clap_plugin,
+        config: *const clap_ambisonic_config,
+    ) -> bool {
+        check_null_ptr!(false, plugin, unsafe { (*plugin).plugin_data }, config);
+        let wrapper = unsafe { &*((*plugin).plugin_data as *const Self) };
+        let config = unsafe { *config };
+        let Some(buses) = &wrapper.ambisonic_buses else {
+            return false;
+        };
+        let Some(config) = ambisonic_config_from_clap(config) else {
+            return false;
+        };
+        let channels = wrapper
+            .current_audio_io_layout
+            .load()
+            .main_input_channels
+            .map_or(0, NonZeroU32::get);
+        buses.is_config_supported(config, channels)
+    }
+
+    unsafe extern "C" fn ext_ambisonic_get_config(
+        plugin: *const clap_plugin,
+        is_input: bool,
+        port_index: u32,
+        config: *mut clap_ambisonic_config,
+    ) -> bool {
+        check_null_ptr!(false, plugin, unsafe { (*plugin).plugin_data }, config);
+        let wrapper = unsafe { &*((*plugin).plugin_data as *const Self) };
+        let Some(buses) = &wrapper.ambisonic_buses else {
+            return false;
+        };
+        let layout = wrapper.current_audio_io_layout.load();
+        let main_channels = if is_input {
+            layout.main_input_channels
+        } else {
+            layout.main_output_channels
+        };
+        // Only the main port (index 0) can be ambisonic, and only with (N+1)² channels.
+        match main_channels {
+            Some(c) if port_index == 0 && ambisonic_order(c.get()).is_some() => {
+                unsafe { *config = ambisonic_config_to_clap(buses.config()) };
+                true
+            }
+            _ => false,
+        }
+    }
+}
+
+/// FIELDGLASS PATCH: the CLAP numbers of an ambisonic configuration (clap/ext/ambisonic.h).
+fn ambisonic_config_to_clap(config: AmbisonicConfig) -> clap_ambisonic_config {
+    clap_ambisonic_config {
+        ordering: match config.ordering {
+            AmbisonicOrdering::Fuma => CLAP_AMBISONIC_ORDERING_FUMA,
+            AmbisonicOrdering::Acn => CLAP_AMBISONIC_ORDERING_ACN,
+        },
+        normalization: match config.normalization {
+            AmbisonicNormalization::MaxN => CLAP_AMBISONIC_NORMALIZATION_MAXN,
+            AmbisonicNormalization::Sn3d => CLAP_AMBISONIC_NORMALIZATION_SN3D,
+            AmbisonicNormalization::N3d => CLAP_AMBISONIC_NORMALIZATION_N3D,
+            AmbisonicNormalization::Sn2d => CLAP_AMBISONIC_NORMALIZATION_SN2D,
+            AmbisonicNormalization::N2d => CLAP_AMBISONIC_NORMALIZATION_N2D,
+        },
+    }
+}
+
+/// FIELDGLASS PATCH: an ambisonic configuration from CLAP numbers; `None` for unknown numbers.
+fn ambisonic_config_from_clap(config: clap_ambisonic_config) -> Option<AmbisonicConfig> {
+    let ordering = match config.ordering {
+        CLAP_AMBISONIC_ORDERING_FUMA => AmbisonicOrdering::Fuma,
+        CLAP_AMBISONIC_ORDERING_ACN => AmbisonicOrdering::Acn,
+        _ => return None,
+    };
+    let normalization = match config.normalization {
+        CLAP_AMBISONIC_NORMALIZATION_MAXN => AmbisonicNormalization::MaxN,
+        CLAP_AMBISONIC_NORMALIZATION_SN3D => AmbisonicNormalization::Sn3d,
+        CLAP_AMBISONIC_NORMALIZATION_N3D => AmbisonicNormalization::N3d,
+        CLAP_AMBISONIC_NORMALIZATION_SN2D => AmbisonicNormalization::Sn2d,
+        CLAP_AMBISONIC_NORMALIZATION_N2D => AmbisonicNormalization::N2d,
+        _ => return None,
+    };
+    Some(AmbisonicConfig {
+        ordering,
+        normalization,
+    })
 }

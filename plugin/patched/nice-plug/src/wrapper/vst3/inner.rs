@@ -98,6 +98,8 @@ pub(crate) struct WrapperInner<P: Vst3Plugin> {
     /// IO layout is chosen as the default. Because of the way VST3 works it's not possible to
     /// change the number of busses from that default, only the channel counts can change.
     pub current_audio_io_layout: AtomicCell<AudioIOLayout>,
+    /// FIELDGLASS PATCH: the plugin's answer to `Vst3Plugin::ambisonic_buses()`.
+    pub ambisonic_buses: Option<Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>>,
     /// The current buffer configuration, containing the sample rate and the maximum block size.
     /// Will be set in `IAudioProcessor::setupProcessing()`.
     pub current_buffer_config: AtomicCell<Option<BufferConfig>>,
@@ -238,6 +240,8 @@ impl<P: Vst3Plugin> WrapperInner<P> {
     pub fn new() -> Arc<Self> {
         let mut plugin = P::default();
         let task_executor = Mutex::new(plugin.task_executor());
+        // FIELDGLASS PATCH: asked once, like `params()`.
+        let ambisonic_buses = plugin.ambisonic_buses();
 
         // This is used to allow the plugin to restore preset data from its editor, see the comment
         // on `Self::updated_state_sender`
@@ -356,6 +360,7 @@ impl<P: Vst3Plugin> WrapperInner<P> {
             current_audio_io_layout: AtomicCell::new(
                 P::AUDIO_IO_LAYOUTS.first().copied().unwrap_or_default(),
             ),
+            ambisonic_buses,
             current_buffer_config: AtomicCell::new(None),
             current_process_mode: AtomicCell::new(ProcessMode::Realtime),
             #[cfg(feature = "editor")]

@@ -49,6 +49,8 @@ use crate::wrapper::state;
 use crate::wrapper::util::buffer_management::{BufferManager, ChannelPointers};
 use crate::wrapper::util::{clamp_input_event_timing, process_wrapper};
 use crate::wrapper::vst3::Vst3Plugin;
+// FIELDGLASS PATCH: ambisonic main buses.
+use crate::wrapper::ambisonic::{AmbisonicConfig, ambisonic_order};
 
 #[allow(clippy::unnecessary_cast)]
 const K_SYMBOLIC_SAMPLE_SIZE_32: i32 = vst3::Steinberg::Vst::SymbolicSampleSizes_::kSample32 as i32;
@@ -902,6 +904,16 @@ impl<P: Vst3Plugin> IAudioProcessorTrait for Wrapper<P> {
                 // again
                 self.inner.current_audio_io_layout.store(layout);
 
+                // FIELDGLASS PATCH: an SDK ambisonic arrangement on the main input states ACN
+                // ordering with SN3D normalisation; any other arrangement states nothing.
+                if let Some(buses) = &self.inner.ambisonic_buses {
+                    let stated = layout.main_input_channels.and_then(|c| {
+                        let ambisonic = ambisonic_arrangement(c.get())?;
+                        (unsafe { *inputs } == ambisonic).then_some(AmbisonicConfig::ACN_SN3D)
+                    });
+                    buses.host_stated(stated);
+                }
+
                 kResultOk
             }
             None => kResultFalse,
@@ -959,7 +971,12 @@ impl<P: Vst3Plugin> IAudioProcessorTrait for Wrapper<P> {
         } else {
             return kInvalidArgument;
         };
-        let channel_map = channel_count_to_map(num_channels);
+        // FIELDGLASS PATCH: the SDK's ambisonic arrangement for (N+1)² channels, N = 1..7, when
+        // the plugin declared ambisonic buses.
+        let channel_map = match ambisonic_arrangement(num_channels) {
+            Some(ambisonic) if self.inner.ambisonic_buses.is_some() => ambisonic,
+            _ => channel_count_to_map(num_channels),
+        };
 
         crate::nice_debug_assert_eq!(num_channels, channel_map.count_ones());
         unsafe { *arr = channel_map };
@@ -1945,4 +1962,20 @@ impl<P: Vst3Plugin> IInfoListenerTrait for Wrapper<P> {
             kResultOk
         }
     }
+}
+
+/// FIELDGLASS PATCH: the VST3 SDK's ambisonic speaker arrangement (ACN ordering, SN3D) for a bus
+/// of `channels` = (N+1)² channels, N = 1 to 7; `None` for other counts.
+pub fn ambisonic_arrangement(channels: u32) -> Option<SpeakerArrangement> {
+    use vst3::Steinberg::Vst::SpeakerArr;
+    Some(match ambisonic_order(channels)? {
+        1 => SpeakerArr::kAmbi1stOrderACN,
+        2 => SpeakerArr::kAmbi2cdOrderACN,
+        3 => SpeakerArr::kAmbi3rdOrderACN,
+        4 => SpeakerArr::kAmbi4thOrderACN,
+        5 => SpeakerArr::kAmbi5thOrderACN,
+        6 => SpeakerArr::kAmbi6thOrderACN,
+        7 => SpeakerArr::kAmbi7thOrderACN,
+        _ => return None,
+    })
 }
