@@ -8,6 +8,7 @@
 use clack_extensions::ambisonic::{AmbisonicConfig, PluginAmbisonic};
 use clack_extensions::audio_ports::{AudioPortInfoBuffer, PluginAudioPorts};
 use clack_extensions::audio_ports_config::{AudioPortsConfigBuffer, PluginAudioPortsConfig};
+use clack_extensions::gui::{GuiSize, HostGui, HostGuiImpl};
 use clack_extensions::params::{ParamInfoBuffer, ParamInfoFlags, PluginParams};
 use clack_extensions::state::PluginState;
 use clack_host::events::event_types::ParamValueEvent;
@@ -16,7 +17,7 @@ use clack_host::process::StartedPluginAudioProcessor;
 use clack_host::utils::ClapId;
 use std::ffi::CString;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// The plugin's CLAP id (plugin/src/lib.rs).
 pub const PLUGIN_ID: &str = "org.fieldglass.monitor";
@@ -109,10 +110,31 @@ impl Rng {
 
 /// Host callbacks shared between threads. The plugin may ask for a main-thread callback (state
 /// changes, parameter notifications); the host runs it at its next chance, as a host's event
-/// loop would.
+/// loop would. The GUI callbacks (`clap.gui` host side) are counted for the editor tests.
 #[derive(Default)]
 pub struct HostShared {
     callback_requested: AtomicBool,
+    pub gui_resize_requests: AtomicUsize,
+    pub gui_closed: AtomicUsize,
+}
+
+impl HostGuiImpl for HostShared {
+    fn resize_hints_changed(&self) {}
+    fn request_resize(&self, _new_size: GuiSize) -> Result<(), HostError> {
+        // A host with an embedded editor accepts and resizes its window; the tests' host window
+        // is resized by the test itself.
+        self.gui_resize_requests.fetch_add(1, Ordering::Relaxed);
+        Ok(())
+    }
+    fn request_show(&self) -> Result<(), HostError> {
+        Ok(())
+    }
+    fn request_hide(&self) -> Result<(), HostError> {
+        Ok(())
+    }
+    fn closed(&self, _was_destroyed: bool) {
+        self.gui_closed.fetch_add(1, Ordering::Relaxed);
+    }
 }
 
 impl SharedHandler<'_> for HostShared {
@@ -123,13 +145,17 @@ impl SharedHandler<'_> for HostShared {
     }
 }
 
-/// The harness's host type: no host extensions beyond the required callbacks.
+/// The harness's host type: the required callbacks and the `clap.gui` host extension.
 pub struct TestHost;
 
 impl HostHandlers for TestHost {
     type Shared<'a> = HostShared;
     type MainThread<'a> = ();
     type AudioProcessor<'a> = ();
+
+    fn declare_extensions(builder: &mut HostExtensions<Self>, _shared: &Self::Shared<'_>) {
+        builder.register::<HostGui>();
+    }
 }
 
 pub type Started = StartedPluginAudioProcessor<TestHost>;

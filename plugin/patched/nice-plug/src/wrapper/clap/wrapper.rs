@@ -2780,9 +2780,17 @@ impl<P: ClapPlugin> Wrapper<P> {
                     }
                 }
 
+                // FIELDGLASS PATCH: a host without the `clap.gui` host extension used to abort
+                // the process here (`unwrap` on `None` inside an `extern "C"` function); refuse
+                // the editor instead.
+                let Some(host_gui) = wrapper.host_gui.borrow().as_ref().map(ClapPtr::clone) else {
+                    crate::nice_error!("The host does not implement clap.gui; no editor");
+                    let _ = Arc::into_raw(wrapper);
+                    return false;
+                };
                 let callbacks: Box<dyn HostCallbacks> = Box::new(ClapHostCallbacks {
                     wrapper: wrapper.this.borrow().clone(),
-                    host_gui: ClapPtr::clone(wrapper.host_gui.borrow().as_ref().unwrap()),
+                    host_gui,
                 });
 
                 struct ClapHostMainThreadCaller<P: ClapPlugin> {
