@@ -69,10 +69,9 @@ impl Buses {
 
 impl AmbisonicBuses for Buses {
     fn is_config_supported(&self, config: AmbisonicConfig, channels: u32) -> bool {
-        let (Some(format), Some(order)) = (
-            format_of(config),
-            order_of_channel_count(channels as usize),
-        ) else {
+        let (Some(format), Some(order)) =
+            (format_of(config), order_of_channel_count(channels as usize))
+        else {
             return false;
         };
         order >= 1 && format.check_order(order).is_ok()

@@ -8,8 +8,8 @@
 //!
 //! Parameter IDs are part of saved sessions and must never change.
 
-use fieldglass_dsp::engine::{AnalysisSettings, Band, EngineControl, MapMethod};
 use crate::ambisonic_buses::HostStatedFormat;
+use fieldglass_dsp::engine::{AnalysisSettings, Band, EngineControl, MapMethod};
 use fieldglass_dsp::format::AmbiFormat;
 use nice_plug::prelude::*;
 use serde::{Deserialize, Serialize};

@@ -135,7 +135,10 @@ fn run(
 /// which flushes operands and results. Bit positions from memory of the Intel and Arm
 /// architecture manuals; the test below checks the effect on x86. Other targets: no-op.
 pub fn flush_subnormals_on_this_thread() {
-    #[cfg(all(any(target_arch = "x86", target_arch = "x86_64"), target_feature = "sse"))]
+    #[cfg(all(
+        any(target_arch = "x86", target_arch = "x86_64"),
+        target_feature = "sse"
+    ))]
     {
         const FTZ: u32 = 1 << 15;
         const DAZ: u32 = 1 << 6;

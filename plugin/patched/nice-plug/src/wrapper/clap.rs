@@ -47,7 +47,9 @@ pub trait ClapPlugin: Plugin {
     /// FIELDGLASS PATCH: return an object to declare the main ports ambisonic (port type
     /// `ambisonic` for (N+1)² channels, and the `clap.ambisonic` extension). Called once when the
     /// wrapper is created.
-    fn ambisonic_buses(&self) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
+    fn ambisonic_buses(
+        &self,
+    ) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
         None
     }
 }

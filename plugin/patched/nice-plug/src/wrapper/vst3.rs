@@ -40,7 +40,9 @@ pub trait Vst3Plugin: Plugin {
     /// FIELDGLASS PATCH: return an object to report main buses of (N+1)² channels as the SDK's
     /// `kAmbi<N>OrderACN` arrangements and hear whether the host chose them. Called once when
     /// the wrapper is created.
-    fn ambisonic_buses(&self) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
+    fn ambisonic_buses(
+        &self,
+    ) -> Option<std::sync::Arc<dyn crate::wrapper::ambisonic::AmbisonicBuses>> {
         None
     }
 }

@@ -2445,10 +2445,10 @@ impl<P: ClapPlugin> Wrapper<P> {
                 let main_output_channels =
                     audio_io_layout.main_output_channels.map(NonZeroU32::get);
                 // FIELDGLASS PATCH: one rule for both ports, ambisonic included.
-                let input_port_type = main_input_channels
-                    .map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
-                let output_port_type = main_output_channels
-                    .map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
+                let input_port_type =
+                    main_input_channels.map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
+                let output_port_type =
+                    main_output_channels.map_or(std::ptr::null(), |c| wrapper.main_port_type(c));
 
                 unsafe { *config = std::mem::zeroed() };
 
