@@ -1,5 +1,6 @@
 //! The editor through the CLAP GUI extension, as a host opens it: created for X11, embedded in
-//! a window the host made, shown while audio runs, resized, hidden and destroyed, 100 times.
+//! a window the host made, shown while audio runs, resized, hidden and destroyed, 100 times;
+//! and a host without the `clap.gui` host extension, which gets a refusal, not a crash.
 //!
 //! Needs an X server with GLX (the editor draws with OpenGL). `.ci/run` starts Xvfb and runs
 //! this test with `--ignored`; by hand:
@@ -259,4 +260,42 @@ fn editor_survives_100_embedded_open_close_cycles_with_audio_running() {
         &sizes_seen[..3]
     );
     assert!(buffers_done.load(Ordering::Relaxed) > 100);
+}
+
+/// A host without the `clap.gui` host extension (allowed by CLAP; some minimal hosts are like
+/// this). The framework used to abort the process when such a host created the editor; the
+/// patched copy refuses instead. Needs no display: the refusal comes before any window.
+#[test]
+fn a_host_without_the_gui_extension_is_refused_an_editor_not_crashed() {
+    use clack_host::prelude::*;
+    use fieldglass_tests::PLUGIN_ID;
+
+    struct BareShared;
+    impl SharedHandler<'_> for BareShared {
+        fn request_restart(&self) {}
+        fn request_process(&self) {}
+        fn request_callback(&self) {}
+    }
+    struct BareHost;
+    impl HostHandlers for BareHost {
+        type Shared<'a> = BareShared;
+        type MainThread<'a> = ();
+        type AudioProcessor<'a> = ();
+    }
+
+    let entry = load_plugin_entry();
+    let info = HostInfo::new("bare", "Fieldglass", "https://example.invalid", "0.1.0").unwrap();
+    let id = std::ffi::CString::new(PLUGIN_ID).unwrap();
+    let mut instance = PluginInstance::<BareHost>::new(|_| BareShared, |_| (), &entry, &id, &info)
+        .expect("instance");
+    let handle = instance.plugin_handle();
+    let gui: PluginGui = handle.get_extension().expect("GUI extension offered");
+    let embedded = GuiConfiguration {
+        api_type: GuiApiType::X11,
+        is_floating: false,
+    };
+    assert!(
+        gui.create(&handle, embedded).is_err(),
+        "no editor without clap.gui"
+    );
 }
