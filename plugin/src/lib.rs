@@ -4,6 +4,7 @@
 //! starts the analysis engine (`fieldglass-dsp`) with its own thread; `process()` copies the
 //! buffer into the engine's pooled blocks and returns; the editor reads the latest snapshot.
 
+pub mod ambisonic_buses;
 pub mod audio;
 pub mod editor;
 pub mod params;
@@ -117,6 +118,10 @@ impl ClapPlugin for Fieldglass {
     const CLAP_MANUAL_URL: Option<&'static str> = None;
     const CLAP_SUPPORT_URL: Option<&'static str> = None;
     const CLAP_FEATURES: &'static [ClapFeature] = &[ClapFeature::Analyzer, ClapFeature::Ambisonic];
+
+    fn ambisonic_buses(&self) -> Option<Arc<dyn AmbisonicBuses>> {
+        Some(Arc::new(ambisonic_buses::Buses::new(self.params.clone())))
+    }
 }
 
 impl Vst3Plugin for Fieldglass {
@@ -126,6 +131,10 @@ impl Vst3Plugin for Fieldglass {
         Vst3SubCategory::Analyzer,
         Vst3SubCategory::Spatial,
     ];
+
+    fn ambisonic_buses(&self) -> Option<Arc<dyn AmbisonicBuses>> {
+        Some(Arc::new(ambisonic_buses::Buses::new(self.params.clone())))
+    }
 }
 
 nice_export_clap!(Fieldglass);

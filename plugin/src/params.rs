@@ -8,6 +8,7 @@
 //!
 //! Parameter IDs are part of saved sessions and must never change.
 
+use crate::ambisonic_buses::HostStatedFormat;
 use fieldglass_dsp::engine::{AnalysisSettings, Band, EngineControl, MapMethod};
 use fieldglass_dsp::format::AmbiFormat;
 use nice_plug::prelude::*;
@@ -177,6 +178,8 @@ pub struct FieldglassParams {
     /// Display switches, saved with the session.
     #[persist = "view"]
     pub view: Arc<RwLock<ViewSettings>>,
+    /// The format the host stated for the buses (not saved: the host states it again).
+    pub host_stated_format: HostStatedFormat,
 }
 
 impl Default for FieldglassParams {
@@ -244,6 +247,7 @@ impl Default for FieldglassParams {
             .with_unit("°")
             .with_value_to_string(degrees_to_string),
             view: Arc::new(RwLock::new(ViewSettings::default())),
+            host_stated_format: HostStatedFormat::default(),
         }
     }
 }
@@ -274,11 +278,24 @@ impl FieldglassParams {
         });
     }
 
+    /// The format the analysis assumes: the user's choice if the Assumed format parameter is
+    /// off its default, else what the host stated, else the default (AmbiX). Plain atomics only.
+    #[inline]
+    pub fn effective_format(&self) -> AmbiFormat {
+        let chosen = self.assumed_format.value();
+        if chosen != self.assumed_format.default_plain_value() {
+            return chosen.format();
+        }
+        self.host_stated_format
+            .load()
+            .unwrap_or_else(|| chosen.format())
+    }
+
     /// Writes the automatable parameters that the analysis uses into `settings`. Reads plain
     /// atomics only, so the audio thread may call it.
     #[inline]
     pub fn copy_automatable_into(&self, settings: &mut AnalysisSettings) {
-        settings.assumed_format = self.assumed_format.value().format();
+        settings.assumed_format = self.effective_format();
         settings.method = self.method.value().method();
         settings.band = self.band.value().band();
         settings.time_constant_ms = f64::from(self.time_constant_ms.value());

@@ -5,8 +5,10 @@
 //! through the CLAP C ABI, and offers what the tests need: layouts, activation, processing with
 //! bit-exact comparison, parameters, state.
 
+use clack_extensions::ambisonic::{AmbisonicConfig, PluginAmbisonic};
 use clack_extensions::audio_ports::{AudioPortInfoBuffer, PluginAudioPorts};
 use clack_extensions::audio_ports_config::{AudioPortsConfigBuffer, PluginAudioPortsConfig};
+use clack_extensions::gui::{GuiSize, HostGui, HostGuiImpl};
 use clack_extensions::params::{ParamInfoBuffer, ParamInfoFlags, PluginParams};
 use clack_extensions::state::PluginState;
 use clack_host::events::event_types::ParamValueEvent;
@@ -15,7 +17,7 @@ use clack_host::process::StartedPluginAudioProcessor;
 use clack_host::utils::ClapId;
 use std::ffi::CString;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// The plugin's CLAP id (plugin/src/lib.rs).
 pub const PLUGIN_ID: &str = "org.fieldglass.monitor";
@@ -108,10 +110,31 @@ impl Rng {
 
 /// Host callbacks shared between threads. The plugin may ask for a main-thread callback (state
 /// changes, parameter notifications); the host runs it at its next chance, as a host's event
-/// loop would.
+/// loop would. The GUI callbacks (`clap.gui` host side) are counted for the editor tests.
 #[derive(Default)]
 pub struct HostShared {
     callback_requested: AtomicBool,
+    pub gui_resize_requests: AtomicUsize,
+    pub gui_closed: AtomicUsize,
+}
+
+impl HostGuiImpl for HostShared {
+    fn resize_hints_changed(&self) {}
+    fn request_resize(&self, _new_size: GuiSize) -> Result<(), HostError> {
+        // A host with an embedded editor accepts and resizes its window; the tests' host window
+        // is resized by the test itself.
+        self.gui_resize_requests.fetch_add(1, Ordering::Relaxed);
+        Ok(())
+    }
+    fn request_show(&self) -> Result<(), HostError> {
+        Ok(())
+    }
+    fn request_hide(&self) -> Result<(), HostError> {
+        Ok(())
+    }
+    fn closed(&self, _was_destroyed: bool) {
+        self.gui_closed.fetch_add(1, Ordering::Relaxed);
+    }
 }
 
 impl SharedHandler<'_> for HostShared {
@@ -122,13 +145,17 @@ impl SharedHandler<'_> for HostShared {
     }
 }
 
-/// The harness's host type: no host extensions beyond the required callbacks.
+/// The harness's host type: the required callbacks and the `clap.gui` host extension.
 pub struct TestHost;
 
 impl HostHandlers for TestHost {
     type Shared<'a> = HostShared;
     type MainThread<'a> = ();
     type AudioProcessor<'a> = ();
+
+    fn declare_extensions(builder: &mut HostExtensions<Self>, _shared: &Self::Shared<'_>) {
+        builder.register::<HostGui>();
+    }
 }
 
 pub type Started = StartedPluginAudioProcessor<TestHost>;
@@ -153,6 +180,26 @@ pub struct LayoutDesc {
     pub output_ports: u32,
     pub main_input_channels: Option<u32>,
     pub main_output_channels: Option<u32>,
+    /// Port types of the main ports (CLAP's strings, e.g. "ambisonic"), if any.
+    pub main_input_type: Option<String>,
+    pub main_output_type: Option<String>,
+}
+
+/// An audio port as the audio-ports extension describes it.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct PortDesc {
+    pub id: u32,
+    pub channels: u32,
+    pub port_type: Option<String>,
+    pub in_place_pair: Option<u32>,
+}
+
+/// An ambisonic configuration as CLAP numbers it (clap/ext/ambisonic.h): ordering FuMa = 0,
+/// ACN = 1; normalisation maxN = 0, SN3D = 1, N3D = 2, SN2D = 3, N2D = 4.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct AmbiConfig {
+    pub ordering: u32,
+    pub normalization: u32,
 }
 
 /// One plugin instance, created through the entry's plugin factory.
@@ -207,6 +254,14 @@ impl Plugin {
                     output_ports: c.output_port_count,
                     main_input_channels: c.main_input.map(|p| p.channel_count),
                     main_output_channels: c.main_output.map(|p| p.channel_count),
+                    main_input_type: c
+                        .main_input
+                        .and_then(|p| p.port_type)
+                        .map(|t| t.0.to_string_lossy().into_owned()),
+                    main_output_type: c
+                        .main_output
+                        .and_then(|p| p.port_type)
+                        .map(|t| t.0.to_string_lossy().into_owned()),
                 }
             })
             .collect()
@@ -233,21 +288,63 @@ impl Plugin {
 
     /// Channel counts of the current audio ports, (inputs, outputs), one entry per port.
     pub fn port_channels(&mut self) -> (Vec<u32>, Vec<u32>) {
+        let (inputs, outputs) = self.ports();
+        let counts = |ports: Vec<PortDesc>| ports.iter().map(|p| p.channels).collect();
+        (counts(inputs), counts(outputs))
+    }
+
+    /// The current audio ports, (inputs, outputs).
+    pub fn ports(&mut self) -> (Vec<PortDesc>, Vec<PortDesc>) {
         let handle = self.handle();
         let ext: PluginAudioPorts = handle.get_extension().expect("audio-ports extension");
         let mut buffer = AudioPortInfoBuffer::new();
-        let mut side = |is_input| -> Vec<u32> {
+        let mut side = |is_input| -> Vec<PortDesc> {
             (0..ext.count(&handle, is_input))
                 .map(|i| {
-                    ext.get(&handle, i, is_input, &mut buffer)
-                        .expect("port info")
-                        .channel_count
+                    let info = ext
+                        .get(&handle, i, is_input, &mut buffer)
+                        .expect("port info");
+                    PortDesc {
+                        id: info.id.get(),
+                        channels: info.channel_count,
+                        port_type: info.port_type.map(|t| t.0.to_string_lossy().into_owned()),
+                        in_place_pair: info.in_place_pair.map(|p| p.get()),
+                    }
                 })
                 .collect()
         };
         let inputs = side(true);
         let outputs = side(false);
         (inputs, outputs)
+    }
+
+    /// Whether the plugin offers the `clap.ambisonic` extension.
+    pub fn has_ambisonic_extension(&mut self) -> bool {
+        self.handle().get_extension::<PluginAmbisonic>().is_some()
+    }
+
+    /// `clap.ambisonic`'s `is_config_supported` for raw CLAP numbers.
+    pub fn ambisonic_supported(&mut self, config: AmbiConfig) -> bool {
+        let handle = self.handle();
+        let ext: PluginAmbisonic = handle.get_extension().expect("ambisonic extension");
+        let raw = clap_sys::ext::ambisonic::clap_ambisonic_config {
+            ordering: config.ordering,
+            normalization: config.normalization,
+        };
+        ext.is_config_supported(&handle, AmbisonicConfig::from_raw(raw))
+    }
+
+    /// `clap.ambisonic`'s `get_config` for a port.
+    pub fn ambisonic_config(&mut self, is_input: bool, port_index: u32) -> Option<AmbiConfig> {
+        let handle = self.handle();
+        let ext: PluginAmbisonic = handle.get_extension().expect("ambisonic extension");
+        ext.get_config(&handle, is_input, port_index).map(|c| {
+            let raw = c.as_raw();
+            AmbiConfig {
+                ordering: raw.ordering,
+                normalization: raw.normalization,
+            }
+        })
     }
 
     /// Every parameter the plugin lists.
@@ -414,6 +511,50 @@ impl Buffers {
                 None,
             )
             .expect("process");
+        self.events.clear();
+        status
+    }
+
+    /// Processes the first `frames` frames in place, as many hosts do: the input and output
+    /// ports share one set of channel buffers (`output`, filled with a copy of `input` first).
+    /// Afterwards `output` must again equal `input`.
+    pub fn process_in_place(&mut self, processor: &mut Started, frames: usize) -> ProcessStatus {
+        use clap_sys::audio_buffer::clap_audio_buffer;
+        for (i, o) in self.input.iter().zip(&mut self.output) {
+            o[..frames].copy_from_slice(&i[..frames]);
+        }
+        self.events.sort();
+        self.out_events.clear();
+        // Host-side allocation, outside the plugin's process call.
+        let mut channels: Vec<*mut f32> = self.output.iter_mut().map(|c| c.as_mut_ptr()).collect();
+        let port = clap_audio_buffer {
+            data32: channels.as_mut_ptr(),
+            data64: std::ptr::null_mut(),
+            channel_count: channels.len() as u32,
+            latency: 0,
+            constant_mask: 0,
+        };
+        let input_ports = [port];
+        let mut output_ports = [port];
+        // SAFETY: both descriptions point at the same live channel buffers of at least `frames`
+        // frames (CLAP allows input and output to share buffers); nothing else touches them
+        // during the call.
+        let (inputs, mut outputs) = unsafe {
+            (
+                InputAudioBuffers::from_raw_buffers(&input_ports, frames as u32),
+                OutputAudioBuffers::from_raw_buffers(&mut output_ports, frames as u32),
+            )
+        };
+        let status = processor
+            .process(
+                &inputs,
+                &mut outputs,
+                &self.events.as_input(),
+                &mut self.out_events.as_output(),
+                None,
+                None,
+            )
+            .expect("process in place");
         self.events.clear();
         status
     }

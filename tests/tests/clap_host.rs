@@ -11,7 +11,8 @@
 
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_tests::{
-    Buffers, LAYOUT_CHANNELS, PLUGIN_ID, ParamDesc, Plugin, Rng, Started, load_plugin_entry,
+    AmbiConfig, Buffers, LAYOUT_CHANNELS, PLUGIN_ID, ParamDesc, Plugin, Rng, Started,
+    load_plugin_entry,
 };
 use std::sync::OnceLock;
 
@@ -124,6 +125,240 @@ fn every_layout_has_equal_input_and_output_channels() {
         // The audio-ports extension reports the selected layout.
         let c = layout.main_input_channels.unwrap();
         assert_eq!(plugin.port_channels(), (vec![c], vec![c]), "{layout:?}");
+    }
+}
+
+/// CLAP's port type string for ambisonic ports, `CLAP_PORT_AMBISONIC` (clap/ext/ambisonic.h).
+const PORT_AMBISONIC: &str = "ambisonic";
+
+/// CLAP's numbers (clap/ext/ambisonic.h): orderings FuMa 0, ACN 1; normalisations maxN 0,
+/// SN3D 1, N3D 2, SN2D 3, N2D 4.
+const ACN_SN3D: AmbiConfig = AmbiConfig {
+    ordering: 1,
+    normalization: 1,
+};
+
+#[test]
+fn every_layout_is_ambisonic_in_ports_configs_and_the_ambisonic_extension() {
+    let entry = load_plugin_entry();
+    let mut plugin = Plugin::new(&entry);
+    assert!(plugin.has_ambisonic_extension(), "clap.ambisonic offered");
+    for layout in plugin.layouts() {
+        let context = format!("{layout:?}");
+        assert_eq!(
+            layout.main_input_type.as_deref(),
+            Some(PORT_AMBISONIC),
+            "{context}"
+        );
+        assert_eq!(
+            layout.main_output_type.as_deref(),
+            Some(PORT_AMBISONIC),
+            "{context}"
+        );
+        assert!(plugin.select_layout(layout.id), "{context}");
+        let (inputs, outputs) = plugin.ports();
+        for port in inputs.iter().chain(&outputs) {
+            assert_eq!(
+                port.port_type.as_deref(),
+                Some(PORT_AMBISONIC),
+                "{context}: {port:?}"
+            );
+        }
+        // The default assumption is ACN/SN3D, reported for the main port of either direction;
+        // there is no second port.
+        assert_eq!(
+            plugin.ambisonic_config(true, 0),
+            Some(ACN_SN3D),
+            "{context}"
+        );
+        assert_eq!(
+            plugin.ambisonic_config(false, 0),
+            Some(ACN_SN3D),
+            "{context}"
+        );
+        assert_eq!(plugin.ambisonic_config(true, 1), None, "{context}");
+
+        // Every pair the engine reads is supported: ACN or FuMa ordering with SN3D, N3D or maxN,
+        // FuMa ordering and maxN weights only to third order (DESIGN.md: FuMa is defined to
+        // third order). The 2D normalisations and unknown numbers are not.
+        let order = (layout.main_input_channels.unwrap() as f64).sqrt() as u32 - 1;
+        for ordering in 0..=2u32 {
+            for normalization in 0..=5u32 {
+                let config = AmbiConfig {
+                    ordering,
+                    normalization,
+                };
+                let expected = match (ordering, normalization) {
+                    (2.., _) | (_, 3..) => false,
+                    (0, _) | (_, 0) => order <= 3,
+                    _ => true,
+                };
+                assert_eq!(
+                    plugin.ambisonic_supported(config),
+                    expected,
+                    "{context}: {config:?}"
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn the_reported_ambisonic_config_follows_the_assumed_format() {
+    let entry = load_plugin_entry();
+    let mut plugin = Plugin::new(&entry);
+    plugin.select_channels(16);
+    let format = plugin
+        .params()
+        .into_iter()
+        .find(|p| p.name == "Assumed format")
+        .expect("format parameter");
+    // Values are the choice's index (plugin/src/params.rs: AmbiX, ACN/N3D, FuMa).
+    for (value, expected) in [
+        (
+            1.0,
+            AmbiConfig {
+                ordering: 1,
+                normalization: 2,
+            },
+        ),
+        (
+            2.0,
+            AmbiConfig {
+                ordering: 0,
+                normalization: 0,
+            },
+        ),
+        (0.0, ACN_SN3D),
+    ] {
+        plugin.flush_params(&[(format.id, value)]);
+        assert_eq!(
+            plugin.ambisonic_config(true, 0),
+            Some(expected),
+            "value {value}"
+        );
+        assert_eq!(
+            plugin.ambisonic_config(false, 0),
+            Some(expected),
+            "value {value}"
+        );
+    }
+}
+
+#[test]
+fn in_place_processing_leaves_the_shared_buffers_untouched_in_every_layout() {
+    let entry = load_plugin_entry();
+    let values = hostile_values();
+    for &channels in &LAYOUT_CHANNELS {
+        let mut plugin = Plugin::new(&entry);
+        plugin.select_channels(channels);
+        // The plugin offers its main ports as an in-place pair (CLAP audio-ports: in_place_pair
+        // names the other direction's port id).
+        let (inputs, outputs) = plugin.ports();
+        assert_eq!(
+            inputs[0].in_place_pair,
+            Some(outputs[0].id),
+            "{channels} ch"
+        );
+        assert_eq!(
+            outputs[0].in_place_pair,
+            Some(inputs[0].id),
+            "{channels} ch"
+        );
+        let max = 1024usize;
+        let processor = plugin.start(48_000.0, max as u32);
+        let mut buffers = Buffers::new(channels, max);
+        let (processor, calls) = on_audio_thread(processor, |p| {
+            let scene = scene();
+            let mut rng = Rng::new(0x1a9_1ace + channels as u64);
+            let mut pos = 0usize;
+            for call in 0..300 {
+                let n = rng.range(1, max);
+                for (c, input) in buffers.input.iter_mut().enumerate() {
+                    for (k, x) in input[..n].iter_mut().enumerate() {
+                        // Mostly programme, now and then a hostile value.
+                        *x = if rng.range(0, 63) == 0 {
+                            values[rng.range(0, values.len() - 1)]
+                        } else {
+                            scene[c][(pos + k) % scene[c].len()]
+                        };
+                    }
+                }
+                buffers.process_in_place(p, n);
+                buffers.assert_passthrough(n, &format!("{channels} ch in place, call {call}"));
+                pos += n;
+            }
+            300
+        });
+        plugin.stop(processor);
+        assert_eq!(calls, 300);
+    }
+}
+
+/// The audio side's cost must not depend on subnormal input (the analysis thread flushes them,
+/// the audio side only copies and compares). Prints the figures; asserts only a generous factor
+/// on the fastest round of each kind, which other load on a shared machine disturbs least.
+#[test]
+fn subnormal_input_costs_no_more_than_normal_input() {
+    let entry = load_plugin_entry();
+    for &channels in &[4usize, 16, 64] {
+        let mut plugin = Plugin::new(&entry);
+        plugin.select_channels(channels);
+        let frames = 512usize;
+        let processor = plugin.start(48_000.0, frames as u32);
+        let mut normal = Buffers::new(channels, frames);
+        let mut subnormal = Buffers::new(channels, frames);
+        let mut rng = Rng::new(0xde_0a11);
+        for c in 0..channels {
+            for k in 0..frames {
+                normal.input[c][k] = rng.noise() * 0.5;
+                // Uniform over the subnormal range, both signs (as clap-validator does).
+                subnormal.input[c][k] = rng.noise() * f32::MIN_POSITIVE;
+            }
+        }
+        assert!(
+            subnormal
+                .input
+                .iter()
+                .flatten()
+                .all(|x| x.is_subnormal() || *x == 0.0)
+        );
+        let rounds = 100;
+        let calls_per_round = 10;
+        let (processor, mut times) = on_audio_thread(processor, |p| {
+            let mut times = [Vec::new(), Vec::new()];
+            // Interleaved rounds, so drift and other load fall on both alike.
+            for _ in 0..rounds {
+                for (which, buffers) in [&mut normal, &mut subnormal].into_iter().enumerate() {
+                    let start = std::time::Instant::now();
+                    for _ in 0..calls_per_round {
+                        buffers.process(p, frames);
+                    }
+                    times[which].push(start.elapsed().as_secs_f64() * 1e6 / calls_per_round as f64);
+                    buffers.assert_passthrough(frames, "timing run");
+                }
+            }
+            times
+        });
+        plugin.stop(processor);
+        for t in &mut times {
+            t.sort_by(f64::total_cmp);
+        }
+        let [normal_us, subnormal_us] = &times;
+        let (min_n, min_s) = (normal_us[0], subnormal_us[0]);
+        let (med_n, med_s) = (normal_us[rounds / 2], subnormal_us[rounds / 2]);
+        eprintln!(
+            "{channels} ch, {frames} frames, µs per process call (fastest / median of {rounds} \
+             rounds): normal {min_n:.2} / {med_n:.2}, subnormal {min_s:.2} / {med_s:.2}, \
+             ratio {:.2} / {:.2}",
+            min_s / min_n,
+            med_s / med_n
+        );
+        assert!(
+            min_s < 3.0 * min_n,
+            "{channels} ch: subnormal input {:.2}× slower",
+            min_s / min_n
+        );
     }
 }
 

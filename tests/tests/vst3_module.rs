@@ -13,7 +13,7 @@ use vst3::ComPtr;
 use vst3::Steinberg::Vst::{
     AudioBusBuffers, AudioBusBuffers__type0, BusDirections_, BusInfo, IAudioProcessor,
     IAudioProcessorTrait, IComponent, IComponent_iid, IComponentTrait, MediaTypes_, ProcessData,
-    ProcessModes_, ProcessSetup, SpeakerArrangement, SymbolicSampleSizes_,
+    ProcessModes_, ProcessSetup, SpeakerArr, SpeakerArrangement, SymbolicSampleSizes_,
 };
 use vst3::Steinberg::{
     IPluginBaseTrait, IPluginFactory, IPluginFactory2, IPluginFactory2Trait, IPluginFactoryTrait,
@@ -132,13 +132,110 @@ fn module_exports_its_factory_and_lists_the_class() {
     }
 }
 
-/// A speaker arrangement with `channels` speakers (the plugin counts its set bits).
+/// A generic speaker arrangement with `channels` speakers (what a host without ambisonic tracks
+/// may offer; the plugin accepts any arrangement with the right number of speakers).
 fn arrangement(channels: usize) -> SpeakerArrangement {
     if channels >= 64 {
         u64::MAX
     } else {
         (1u64 << channels) - 1
     }
+}
+
+/// The VST3 SDK's ambisonic arrangements (ACN ordering; pluginterfaces/vst/vstspeaker.h, as
+/// the `vst3` crate's bindings carry them), orders 1 to 7, by channel count.
+const AMBISONIC_ARRANGEMENTS: [(usize, SpeakerArrangement); 7] = [
+    (4, SpeakerArr::kAmbi1stOrderACN),
+    (9, SpeakerArr::kAmbi2cdOrderACN),
+    (16, SpeakerArr::kAmbi3rdOrderACN),
+    (25, SpeakerArr::kAmbi4thOrderACN),
+    (36, SpeakerArr::kAmbi5thOrderACN),
+    (49, SpeakerArr::kAmbi6thOrderACN),
+    (64, SpeakerArr::kAmbi7thOrderACN),
+];
+
+/// The arrangement the component reports for bus 0 of `direction`.
+fn bus_arrangement(processor: &ComPtr<IAudioProcessor>, direction: i32) -> SpeakerArrangement {
+    let mut arr: SpeakerArrangement = 0;
+    // SAFETY: COM call on a live processor with a valid out pointer.
+    let result = unsafe { processor.getBusArrangement(direction, 0, &mut arr) };
+    assert_eq!(result, kResultOk, "getBusArrangement");
+    arr
+}
+
+#[test]
+fn every_layout_reports_the_sdk_ambisonic_arrangement() {
+    let module = Module::load();
+    let component = module.component();
+    let processor = component
+        .cast::<IAudioProcessor>()
+        .expect("IAudioProcessor");
+    let input = BusDirections_::kInput as i32;
+    let output = BusDirections_::kOutput as i32;
+    // Before any setBusArrangements: the first layout, first order.
+    assert_eq!(
+        bus_arrangement(&processor, input),
+        SpeakerArr::kAmbi1stOrderACN
+    );
+    assert_eq!(
+        bus_arrangement(&processor, output),
+        SpeakerArr::kAmbi1stOrderACN
+    );
+    assert_eq!(
+        AMBISONIC_ARRANGEMENTS.map(|(c, _)| c),
+        LAYOUT_CHANNELS,
+        "one ambisonic arrangement per layout"
+    );
+    for (channels, ambisonic) in AMBISONIC_ARRANGEMENTS {
+        assert_eq!(ambisonic.count_ones() as usize, channels, "SDK constant");
+        // The host offers the ambisonic arrangement, or a generic one of the same size; either
+        // is taken, and the plugin reports the ambisonic one back.
+        for offered in [ambisonic, arrangement(channels)] {
+            let mut ins = [offered];
+            let mut outs = [offered];
+            // SAFETY: COM call with arrays of one arrangement each.
+            let result =
+                unsafe { processor.setBusArrangements(ins.as_mut_ptr(), 1, outs.as_mut_ptr(), 1) };
+            assert_eq!(result, kResultOk, "{channels} ch, offered {offered:#x}");
+            assert_eq!(
+                bus_arrangement(&processor, input),
+                ambisonic,
+                "{channels} ch in"
+            );
+            assert_eq!(
+                bus_arrangement(&processor, output),
+                ambisonic,
+                "{channels} ch out"
+            );
+        }
+    }
+    // Sizes that are no layout are refused, and the last layout stays.
+    for refused in [
+        SpeakerArr::kStereo,
+        SpeakerArr::k51,
+        arrangement(5),
+        arrangement(17),
+    ] {
+        let mut ins = [refused];
+        let mut outs = [refused];
+        // SAFETY: as above.
+        let result =
+            unsafe { processor.setBusArrangements(ins.as_mut_ptr(), 1, outs.as_mut_ptr(), 1) };
+        assert_ne!(result, kResultOk, "{refused:#x}");
+        assert_eq!(
+            bus_arrangement(&processor, input),
+            SpeakerArr::kAmbi7thOrderACN
+        );
+    }
+    // Input and output of different orders are refused.
+    let mut ins = [SpeakerArr::kAmbi1stOrderACN];
+    let mut outs = [SpeakerArr::kAmbi3rdOrderACN];
+    // SAFETY: as above.
+    let result = unsafe { processor.setBusArrangements(ins.as_mut_ptr(), 1, outs.as_mut_ptr(), 1) };
+    assert_ne!(result, kResultOk);
+    drop(processor);
+    // SAFETY: plain COM call on a live component.
+    assert_eq!(unsafe { component.terminate() }, kResultOk);
 }
 
 #[test]
@@ -158,9 +255,9 @@ fn component_takes_every_layout_and_passes_audio_through() {
             .cast::<IAudioProcessor>()
             .expect("IAudioProcessor");
         let mut rng = Rng::new(0x0573_0001);
-        for &channels in &LAYOUT_CHANNELS {
-            let mut ins = [arrangement(channels)];
-            let mut outs = [arrangement(channels)];
+        for (channels, ambisonic) in AMBISONIC_ARRANGEMENTS {
+            let mut ins = [ambisonic];
+            let mut outs = [ambisonic];
             assert_eq!(
                 processor.setBusArrangements(ins.as_mut_ptr(), 1, outs.as_mut_ptr(), 1),
                 kResultOk,
