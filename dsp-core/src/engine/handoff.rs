@@ -10,6 +10,10 @@ use crossbeam_channel::{Receiver, Sender, TrySendError, bounded};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicU64, Ordering};
 
+/// How long the analysis side sleeps when no block is waiting: short against a 30 Hz map
+/// and any host block, long enough that polling costs nothing measurable.
+pub const POLL_INTERVAL: std::time::Duration = std::time::Duration::from_millis(2);
+
 /// One block of planar audio, channels × up to `capacity_frames` frames.
 #[derive(Debug)]
 pub struct AudioBlock {
@@ -223,16 +227,23 @@ impl AudioSide {
 }
 
 impl BlockReceiver {
-    /// Waits up to `timeout` for a block and passes it to `f`, then returns it to the pool.
-    /// Returns false when nothing arrived (timeout) or the audio side is gone.
+    /// Takes a waiting block and passes it to `f`, then returns it to the pool; with none
+    /// waiting, sleeps up to `timeout` (at most [`POLL_INTERVAL`]) and returns false.
+    ///
+    /// It polls instead of blocking on the channel on purpose: a receiver parked in the
+    /// channel is woken by the sender, and the sender is the audio thread, whose `try_send`
+    /// would then make a futex system call. With nobody parked, `try_send` is atomics only.
     pub fn recv_with(&self, timeout: std::time::Duration, f: impl FnOnce(&AudioBlock)) -> bool {
-        match self.filled.recv_timeout(timeout) {
+        match self.filled.try_recv() {
             Ok(block) => {
                 f(&block);
                 let _ = self.recycle.try_send(block);
                 true
             }
-            Err(_) => false,
+            Err(_) => {
+                std::thread::sleep(timeout.min(POLL_INTERVAL));
+                false
+            }
         }
     }
 
