@@ -52,6 +52,7 @@
 
 pub mod a_format;
 mod channel_health;
+pub mod geometric_ties;
 pub mod geometry;
 pub mod horizontal;
 mod steering_fit;
@@ -61,6 +62,7 @@ pub use channel_health::{DUPLICATE_CORRELATION, SILENT_MEAN_SQUARE};
 use crate::engine::snapshot::{FormatCheck, HypothesisScore};
 use crate::format::{AmbiFormat, ConversionPlan};
 use crate::sh::{MAX_SH_ORDER, channel_count};
+use geometric_ties::{GeometricTies, TieQuery};
 use geometry::{Geometry, GeometryQuery};
 use horizontal::{HorizontalIdentities, HorizontalQuery, HorizontalReading};
 use std::fmt;
@@ -201,6 +203,7 @@ pub struct FormatChecker {
     hypotheses: Vec<Hypothesis>,
     search: SteeringFitSearch,
     identities: HorizontalIdentities,
+    ties: GeometricTies,
     /// Converted covariance, (order+1)² squared, row-major, indexed by \[acn\]\[acn\].
     converted: Vec<f64>,
 }
@@ -266,6 +269,7 @@ impl FormatChecker {
             hypotheses,
             search: SteeringFitSearch::new(order),
             identities: HorizontalIdentities::new(order),
+            ties: GeometricTies::new(order),
             converted: vec![0.0; channels * channels],
         })
     }
@@ -421,6 +425,12 @@ impl FormatChecker {
 
         let culprits = self.copied_into_plane_waves(&evidence, input, &excluded, effective_order);
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
+        self.explain_by_geometric_ties(
+            &mut result.duplicate_channels,
+            &facts,
+            input,
+            effective_order,
+        );
         if let Some(culprits) = culprits {
             restrict_to_culprits(&mut result.duplicate_channels, &culprits, input, channels);
         }
@@ -508,6 +518,52 @@ impl FormatChecker {
             pairs.clear();
         }
         result.duplicate_channels = pairs;
+    }
+
+    /// Drops the correlated pairs that a scene model of [`geometric_ties`] explains under
+    /// some hypothesis (one axis, one elevation, plane waves in the top orders only).
+    fn explain_by_geometric_ties(
+        &mut self,
+        pairs: &mut Vec<(usize, usize)>,
+        facts: &ChannelFacts,
+        input: &FormatCheckInput,
+        effective_order: usize,
+    ) {
+        if pairs.is_empty() {
+            return;
+        }
+        let mut explained = vec![false; pairs.len()];
+        for index in 0..self.hypotheses.len() {
+            self.convert(index, input.raw_covariance);
+            let plan = &self.hypotheses[index].plan;
+            let mut acn_of_input = vec![0; plan.channels()];
+            for a in 0..plan.channels() {
+                acn_of_input[plan.source_channel(a)] = a;
+            }
+            let acn_pairs: Vec<(usize, usize)> = pairs
+                .iter()
+                .map(|&(i, j)| (acn_of_input[i], acn_of_input[j]))
+                .collect();
+            let present = facts.present(plan);
+            let live = facts.live(plan);
+            self.ties.explain(
+                &mut self.search,
+                &TieQuery {
+                    covariance: &self.converted,
+                    plan,
+                    present: &present,
+                    live: &live,
+                    effective_order,
+                },
+                &acn_pairs,
+                &mut explained,
+            );
+            if explained.iter().all(|&e| e) {
+                break;
+            }
+        }
+        let mut flags = explained.into_iter();
+        pairs.retain(|_| !flags.next().unwrap_or(false));
     }
 
     /// When the covariance is a few strong components that do *not* fit plane waves under

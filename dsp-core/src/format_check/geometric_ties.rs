@@ -1,0 +1,353 @@
+//! Channel pairs that the scene's geometry makes proportional, beyond the horizontal plane
+//! and the one-to-three plane waves of the whole covariance.
+//!
+//! # The rule
+//! For sources s_k at directions d_k, channel a carries Σ_k Y_a(d_k)·s_k. Two channels are
+//! proportional, c_a = r·c_b, for independent sources exactly when Y_a(d_k) = r·Y_b(d_k) for
+//! every k: every direction lies on one level curve of Y_a/Y_b (a source that reaches neither
+//! channel, because it is present only in other orders, satisfies it trivially). So a
+//! correlated pair is explained when a model of the scene that puts every source on such a
+//! curve fits the covariance, and the pair's own ratio is the one the model predicts.
+//! Ordinary material produces a few such families; each is tested here as a set of
+//! predictions about the ACN/SN3D covariance under one format hypothesis:
+//!
+//! - **One axis** (a source that jumps to the opposite side, or two sources facing each
+//!   other): Y_nm(−u) = (−1)^n Y_nm(u), so with directions ±u only, every even-order
+//!   channel is Y_a(u)·(s₁ + s₂) and every odd-order channel Y_a(u)·(s₁ − s₂): the even
+//!   channels are proportional among themselves, and so are the odd ones, with ratios
+//!   Y_a(u)/Y_b(u); and X² + Y² + Z² = W² (SN3D addition theorem at first order, any
+//!   incoherent mixture of plane waves). u is the principal axis of the first-order block.
+//! - **One elevation** (pan automation at a fixed elevation e; the horizontal plane is
+//!   e = 0): Y_nm(az, e) = N_n^|m|·P_n^|m|(sin e)·trig(m·az), so the components of equal
+//!   degree m are proportional with ratios N_n^|m|P_n^|m|(sin e) / N_n'^|m|P_n'^|m|(sin e),
+//!   Z = sin e·W, and each sectoral pair carries Y_|m|,|m|² + Y_|m|,−|m|² = (N P_|m|^|m|(sin e))²
+//!   times W's energy, whatever the azimuths (cos² + sin² = 1). sin e comes from Z against W.
+//! - **Plane waves in the top orders only** (a first-order recording under a higher-order
+//!   panned source): the block of orders n₀..N is one to three plane waves, steering vectors
+//!   restricted to those orders, over a floor 30 dB down (the test of [`super::geometry`] on
+//!   that block); every pair inside the block is then explained.
+//!
+//! A model holds when at most a quarter of its predictions fail (a copied or corrupted
+//! channel breaks its own ties but not the others'), and at most that; a pair is explained
+//! only if its own tie holds too. A copy across degrees, across parities or out of the
+//! block, or a copy whose gain is not the predicted ratio, stays a duplicate.
+//!
+//! Sources: the real SH in SN3D with no Condon–Shortley phase as in DESIGN.md (the AmbiX
+//! convention, Nachbar et al. 2011); the parity P_n^m(−x) = (−1)^(n+m) P_n^m(x) of the
+//! associated Legendre functions (Abramowitz & Stegun, *Handbook of Mathematical
+//! Functions*, ch. 8, and DLMF §14; from memory, no equation number checked), which with
+//! cos(m(φ+π)) = (−1)^m cos(mφ) gives Y_nm(−u) = (−1)^n Y_nm(u); the SN3D Legendre values
+//! come from [`sn3d_legendre`], itself tested against the closed forms of the AmbiX table.
+//!
+//! Cost: the axis and elevation models are O(M²) tie tests; the top-order model is at most
+//! one eigen-analysis per order (sizes (N+1)² − n₀²) and a steering fit, and runs only for
+//! blocks that hold an unexplained pair.
+
+use super::geometry::{self, GeometryQuery};
+use super::horizontal::HORIZONTAL_NOISE_MEAN_SQUARE;
+use super::steering_fit::SteeringFitSearch;
+use crate::format::ConversionPlan;
+use crate::sh::{ShEvaluator, acn, channel_count, order_degree, sn3d_legendre};
+use crate::sphere::Direction;
+use nalgebra::{Matrix3, SymmetricEigen};
+
+/// A predicted tie a = r·b may leave this share of the two channels' own energy
+/// (c_aa + r²·c_bb) unexplained (−30 dB). A pair is only flagged when the part of each channel
+/// outside the other is below about −37 dB (correlation 0.9999), so every flagged pair that
+/// the model explains passes with margin, while a copy with a gain other than the predicted
+/// ratio (off by more than ~3 %) fails.
+pub const TIE_RESIDUAL_SHARE: f64 = 1e-3;
+
+/// A predicted energy (a sectoral pair against W, or the first-order block against W) may
+/// miss by this share of itself (about ±0.5 dB), plus the noise allowance.
+pub const ENERGY_TOLERANCE_SHARE: f64 = 0.12;
+
+/// A component predicted empty may hold this share of W's energy (−40 dB), as in the
+/// horizontal test.
+const ZERO_RESIDUAL_SHARE: f64 = 1e-4;
+
+/// |sin e| above this is a source at a pole: a single direction, left to the plane-wave test.
+const POLE_SIN_ELEVATION: f64 = 0.999;
+
+/// Predicted coefficients below this are zero (a group predicted empty).
+const ZERO_COEFFICIENT: f64 = 1e-9;
+
+/// What the models look at, indexed by \[acn\] after conversion under one hypothesis.
+pub(crate) struct TieQuery<'a> {
+    /// ACN/SN3D covariance of the full order, (order+1)² square, row-major.
+    pub covariance: &'a [f64],
+    pub plan: &'a ConversionPlan,
+    /// The component exists (not a known-absent channel).
+    pub present: &'a [bool],
+    /// The component's input channel carries signal.
+    pub live: &'a [bool],
+    /// Only orders up to this one are judged.
+    pub effective_order: usize,
+}
+
+/// A family's prediction: channel a carries coefficient\[a\] · (the signal of group\[a\]).
+struct Prediction {
+    group: Vec<Option<usize>>,
+    coefficient: Vec<f64>,
+}
+
+/// Scratch for the models at one order. Building it allocates; [`explain`](Self::explain)
+/// allocates only its small per-call tables.
+#[derive(Clone, Debug)]
+pub(crate) struct GeometricTies {
+    order: usize,
+    evaluator: ShEvaluator,
+    legendre: Vec<f64>,
+    sh_values: Vec<f64>,
+}
+
+impl GeometricTies {
+    pub(crate) fn new(order: usize) -> Self {
+        Self {
+            order,
+            evaluator: ShEvaluator::new(order),
+            legendre: vec![0.0; (order + 1) * (order + 2) / 2],
+            sh_values: vec![0.0; channel_count(order)],
+        }
+    }
+
+    /// Marks `explained[k]` for each ACN pair `pairs[k]` = (a, b) that one of the models
+    /// explains under this hypothesis. Pairs already marked are left alone.
+    pub(crate) fn explain(
+        &mut self,
+        search: &mut SteeringFitSearch,
+        query: &TieQuery,
+        pairs: &[(usize, usize)],
+        explained: &mut [bool],
+    ) {
+        if query.effective_order == 0 || explained.iter().all(|&e| e) {
+            return;
+        }
+        if let Some(prediction) = self.one_axis(query) {
+            mark_ties(query, &prediction, pairs, explained);
+        }
+        if let Some(prediction) = self.one_elevation(query) {
+            mark_ties(query, &prediction, pairs, explained);
+        }
+        self.top_order_plane_waves(search, query, pairs, explained);
+    }
+
+    /// All sources on one axis ±u: even orders tied to W, odd orders to each other.
+    fn one_axis(&mut self, query: &TieQuery) -> Option<Prediction> {
+        let order = query.effective_order;
+        if !(0..4).all(|a| query.present[a] && query.live[a]) {
+            return None;
+        }
+        let c = |a: usize, b: usize| query.covariance[a * query.plan.channels() + b];
+        // First-order block in Cartesian order x (ACN 3), y (ACN 1), z (ACN 2).
+        let axes = [3, 1, 2];
+        let block = Matrix3::from_fn(|i, j| c(axes[i], axes[j]));
+        let eigen = SymmetricEigen::new(block);
+        let top = eigen.eigenvalues.imax();
+        let axis = eigen.eigenvectors.column(top);
+        let unit = [axis[0], axis[1], axis[2]];
+        self.evaluator
+            .eval(Direction::from_cartesian(unit), &mut self.sh_values);
+        let channels = channel_count(order);
+        let group = (0..channels).map(|a| Some(order_degree(a).0 % 2)).collect();
+        let prediction = Prediction {
+            group,
+            coefficient: self.sh_values[..channels].to_vec(),
+        };
+        // X² + Y² + Z² = W² for any incoherent mixture of plane waves (SN3D).
+        let first_order = [(1..4).map(|a| c(a, a)).sum::<f64>()];
+        let energy = [(
+            first_order[0],
+            c(0, 0),
+            (1..4).map(|a| noise(query, a)).sum(),
+        )];
+        judge(query, &prediction, &energy).then_some(prediction)
+    }
+
+    /// All sources at one elevation: equal-m components tied with Legendre ratios.
+    fn one_elevation(&mut self, query: &TieQuery) -> Option<Prediction> {
+        let order = query.effective_order;
+        if !(query.present[0] && query.live[0] && query.present[2] && query.live[2]) {
+            return None;
+        }
+        let c = |a: usize, b: usize| query.covariance[a * query.plan.channels() + b];
+        let sin_el = c(0, 2) / c(0, 0);
+        if !sin_el.is_finite() || sin_el.abs() > POLE_SIN_ELEVATION {
+            return None;
+        }
+        sn3d_legendre(order, sin_el, &mut self.legendre);
+        let legendre = |n: usize, m: usize| self.legendre[n * (n + 1) / 2 + m];
+        let channels = channel_count(order);
+        let mut group = Vec::with_capacity(channels);
+        let mut coefficient = Vec::with_capacity(channels);
+        for a in 0..channels {
+            let (n, m) = order_degree(a);
+            // Groups by degree m, numbered m + order so that they are distinct.
+            group.push(Some((m + order as i32) as usize));
+            coefficient.push(legendre(n, m.unsigned_abs() as usize));
+        }
+        let prediction = Prediction { group, coefficient };
+        // Each sectoral pair against W: (N P_m^m(sin e))², whatever the azimuths.
+        let energy: Vec<(f64, f64, f64)> = (1..=order)
+            .filter_map(|m| {
+                let pair = [acn(m, m as i32), acn(m, -(m as i32))];
+                if !pair.iter().all(|&a| query.present[a] && query.live[a]) {
+                    return None;
+                }
+                let measured = c(pair[0], pair[0]) + c(pair[1], pair[1]);
+                let predicted = legendre(m, m).powi(2) * c(0, 0);
+                Some((
+                    measured,
+                    predicted,
+                    noise(query, pair[0]) + noise(query, pair[1]),
+                ))
+            })
+            .collect();
+        judge(query, &prediction, &energy).then_some(prediction)
+    }
+
+    /// Blocks of orders n₀..N that are one to three plane waves on their own.
+    fn top_order_plane_waves(
+        &mut self,
+        search: &mut SteeringFitSearch,
+        query: &TieQuery,
+        pairs: &[(usize, usize)],
+        explained: &mut [bool],
+    ) {
+        let order = query.effective_order;
+        let channels = channel_count(order);
+        let mut block = vec![false; channels];
+        for lowest in 1..=order {
+            let in_block = |a: usize| order_degree(a).0 >= lowest;
+            let wanted = pairs
+                .iter()
+                .zip(explained.iter())
+                .any(|(&(a, b), &done)| !done && in_block(a) && in_block(b));
+            if !wanted {
+                continue;
+            }
+            for (a, slot) in block.iter_mut().enumerate() {
+                *slot = query.present[a] && in_block(a);
+            }
+            let fitted = geometry::analyse(
+                search,
+                &GeometryQuery {
+                    covariance: query.covariance,
+                    full_order: self.order,
+                    order,
+                    present: &block,
+                },
+            );
+            if fitted.plane_waves.is_some() {
+                for (&(a, b), done) in pairs.iter().zip(explained.iter_mut()) {
+                    *done |= in_block(a) && in_block(b);
+                }
+                return;
+            }
+        }
+    }
+}
+
+/// Noise allowance of a converted channel (as in the horizontal test).
+fn noise(query: &TieQuery, a: usize) -> f64 {
+    HORIZONTAL_NOISE_MEAN_SQUARE * query.plan.gain(a).powi(2)
+}
+
+/// Does tie a = r·b hold, with r the ratio of the predicted coefficients (the smaller over
+/// the larger, so r is bounded)?
+fn tie_holds(query: &TieQuery, prediction: &Prediction, a: usize, b: usize) -> bool {
+    let (ga, gb) = (prediction.coefficient[a], prediction.coefficient[b]);
+    let (a, b, r) = if ga.abs() <= gb.abs() {
+        (a, b, ga / gb)
+    } else {
+        (b, a, gb / ga)
+    };
+    let channels = query.plan.channels();
+    let c = |i: usize, j: usize| query.covariance[i * channels + j];
+    let residual = c(a, a) - 2.0 * r * c(a, b) + r * r * c(b, b);
+    let allowance = TIE_RESIDUAL_SHARE * (c(a, a) + r * r * c(b, b))
+        + noise(query, a)
+        + r * r * noise(query, b);
+    residual <= allowance
+}
+
+/// Usable component: present, carrying signal, inside the effective order.
+fn usable(query: &TieQuery, a: usize) -> bool {
+    query.present[a] && query.live[a]
+}
+
+/// Counts the model's predictions (every tie inside a group, every component of a group
+/// predicted empty, the energies given as (measured, predicted, noise)) and says whether at
+/// most a quarter of them failed.
+fn judge(query: &TieQuery, prediction: &Prediction, energies: &[(f64, f64, f64)]) -> bool {
+    let channels = prediction.coefficient.len();
+    let c = |i: usize, j: usize| query.covariance[i * query.plan.channels() + j];
+    let w = c(0, 0);
+    if !(w > 0.0) {
+        return false;
+    }
+    let mut predictions = 0usize;
+    let mut violations = 0usize;
+    let mut tally = |held: bool| {
+        predictions += 1;
+        if !held {
+            violations += 1;
+        }
+    };
+    let groups = prediction
+        .group
+        .iter()
+        .flatten()
+        .copied()
+        .max()
+        .map_or(0, |g| g + 1);
+    for group in 0..groups {
+        let members: Vec<usize> = (0..channels)
+            .filter(|&a| prediction.group[a] == Some(group) && query.present[a])
+            .collect();
+        let largest = members
+            .iter()
+            .map(|&a| prediction.coefficient[a].abs())
+            .fold(0.0, f64::max);
+        if largest < ZERO_COEFFICIENT {
+            for &a in &members {
+                tally(c(a, a) <= ZERO_RESIDUAL_SHARE * w + noise(query, a));
+            }
+            continue;
+        }
+        let live: Vec<usize> = members.into_iter().filter(|&a| usable(query, a)).collect();
+        for (i, &a) in live.iter().enumerate() {
+            for &b in &live[i + 1..] {
+                tally(tie_holds(query, prediction, a, b));
+            }
+        }
+    }
+    for &(measured, predicted, noise) in energies {
+        tally((measured - predicted).abs() <= ENERGY_TOLERANCE_SHARE * predicted + noise);
+    }
+    predictions > 0 && violations <= (predictions - 1) / 4
+}
+
+/// Marks the pairs inside one group of a model that holds whose own tie holds.
+fn mark_ties(
+    query: &TieQuery,
+    prediction: &Prediction,
+    pairs: &[(usize, usize)],
+    explained: &mut [bool],
+) {
+    let channels = prediction.coefficient.len();
+    for (&(a, b), done) in pairs.iter().zip(explained.iter_mut()) {
+        if *done || a >= channels || b >= channels {
+            continue;
+        }
+        let same_group =
+            prediction.group[a].is_some() && prediction.group[a] == prediction.group[b];
+        let nonzero = prediction.coefficient[a]
+            .abs()
+            .max(prediction.coefficient[b].abs())
+            >= ZERO_COEFFICIENT;
+        if same_group && nonzero && tie_holds(query, prediction, a, b) {
+            *done = true;
+        }
+    }
+}
