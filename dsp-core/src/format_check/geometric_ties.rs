@@ -69,6 +69,10 @@ const ZERO_RESIDUAL_SHARE: f64 = 1e-4;
 /// |sin e| above this is a source at a pole: a single direction, left to the plane-wave test.
 const POLE_SIN_ELEVATION: f64 = 0.999;
 
+/// Two channels are at the same level (a copy) when their raw mean squares differ by at
+/// most this share (as in the copied-channel search of the format check).
+const SAME_LEVEL_SHARE: f64 = 1e-3;
+
 /// Predicted coefficients below this are zero (a group predicted empty).
 const ZERO_COEFFICIENT: f64 = 1e-9;
 
@@ -112,16 +116,18 @@ impl GeometricTies {
     }
 
     /// Marks `explained[k]` for each ACN pair `pairs[k]` = (a, b) that one of the models
-    /// explains under this hypothesis. Pairs already marked are left alone.
+    /// explains under this hypothesis. Pairs already marked are left alone. Returns the ACN
+    /// of a channel copied into a block of top orders that is otherwise plane waves, if one
+    /// was found (its pairs stay unexplained).
     pub(crate) fn explain(
         &mut self,
         search: &mut SteeringFitSearch,
         query: &TieQuery,
         pairs: &[(usize, usize)],
         explained: &mut [bool],
-    ) {
+    ) -> Option<usize> {
         if query.effective_order == 0 || explained.iter().all(|&e| e) {
-            return;
+            return None;
         }
         if let Some(prediction) = self.one_axis(query) {
             mark_ties(query, &prediction, pairs, explained);
@@ -129,7 +135,7 @@ impl GeometricTies {
         if let Some(prediction) = self.one_elevation(query) {
             mark_ties(query, &prediction, pairs, explained);
         }
-        self.top_order_plane_waves(search, query, pairs, explained);
+        self.top_order_plane_waves(search, query, pairs, explained)
     }
 
     /// All sources on one axis ±u: even orders tied to W, odd orders to each other.
@@ -206,45 +212,75 @@ impl GeometricTies {
         judge(query, &prediction, &energy).then_some(prediction)
     }
 
-    /// Blocks of orders n₀..N that are one to three plane waves on their own.
+    /// Blocks of orders n₀..N that are one to three plane waves on their own. When a block
+    /// has that few strong components but they do not fit, a channel of a same-level pair (a
+    /// copy keeps its source's level) whose removal makes them fit is the culprit: the
+    /// block's other pairs are explained and the culprit's ACN is returned.
     fn top_order_plane_waves(
         &mut self,
         search: &mut SteeringFitSearch,
         query: &TieQuery,
         pairs: &[(usize, usize)],
         explained: &mut [bool],
-    ) {
+    ) -> Option<usize> {
         let order = query.effective_order;
         let channels = channel_count(order);
         let mut block = vec![false; channels];
+        let stride = query.plan.channels();
+        let raw_power = |a: usize| query.covariance[a * stride + a] / query.plan.gain(a).powi(2);
+        let same_level = |a: usize, b: usize| {
+            let (pa, pb) = (raw_power(a), raw_power(b));
+            (pa - pb).abs() <= SAME_LEVEL_SHARE * pa.max(pb)
+        };
         for lowest in 1..=order {
-            let in_block = |a: usize| order_degree(a).0 >= lowest;
-            let wanted = pairs
-                .iter()
-                .zip(explained.iter())
-                .any(|(&(a, b), &done)| !done && in_block(a) && in_block(b));
-            if !wanted {
+            let in_block = |a: usize| a < channels && order_degree(a).0 >= lowest;
+            let open = |k: usize| !explained[k] && in_block(pairs[k].0) && in_block(pairs[k].1);
+            if !(0..pairs.len()).any(open) {
                 continue;
             }
             for (a, slot) in block.iter_mut().enumerate() {
                 *slot = query.present[a] && in_block(a);
             }
-            let fitted = geometry::analyse(
-                search,
-                &GeometryQuery {
-                    covariance: query.covariance,
-                    full_order: self.order,
-                    order,
-                    present: &block,
-                },
-            );
+            let mut fits = |block: &[bool]| {
+                geometry::analyse(
+                    search,
+                    &GeometryQuery {
+                        covariance: query.covariance,
+                        full_order: self.order,
+                        order,
+                        present: block,
+                    },
+                )
+            };
+            let fitted = fits(&block);
             if fitted.plane_waves.is_some() {
                 for (&(a, b), done) in pairs.iter().zip(explained.iter_mut()) {
                     *done |= in_block(a) && in_block(b);
                 }
-                return;
+                return None;
+            }
+            if fitted.low_rank.is_none() {
+                continue;
+            }
+            let mut candidates: Vec<usize> = (0..pairs.len())
+                .filter(|&k| open(k) && same_level(pairs[k].0, pairs[k].1))
+                .flat_map(|k| [pairs[k].0, pairs[k].1])
+                .collect();
+            candidates.sort_unstable();
+            candidates.dedup();
+            for culprit in candidates {
+                block[culprit] = false;
+                let masked = fits(&block);
+                block[culprit] = true;
+                if masked.plane_waves.is_some() {
+                    for (&(a, b), done) in pairs.iter().zip(explained.iter_mut()) {
+                        *done |= in_block(a) && in_block(b) && a != culprit && b != culprit;
+                    }
+                    return Some(culprit);
+                }
             }
         }
+        None
     }
 }
 

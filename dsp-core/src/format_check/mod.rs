@@ -423,7 +423,6 @@ impl FormatChecker {
             result.confidence = best.probability;
         }
 
-        let culprits = self.copied_into_plane_waves(&evidence, input, &excluded, effective_order);
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
         self.explain_by_geometric_ties(
             &mut result.duplicate_channels,
@@ -431,7 +430,12 @@ impl FormatChecker {
             input,
             effective_order,
         );
-        if let Some(culprits) = culprits {
+        // The masked search costs one eigen-analysis per channel and hypothesis: only when
+        // some correlated pair is left to name.
+        if !result.duplicate_channels.is_empty()
+            && let Some(culprits) =
+                self.copied_into_plane_waves(&evidence, input, &excluded, effective_order)
+        {
             restrict_to_culprits(&mut result.duplicate_channels, &culprits, input, channels);
         }
 
@@ -533,6 +537,7 @@ impl FormatChecker {
             return;
         }
         let mut explained = vec![false; pairs.len()];
+        let mut culprits = Vec::new();
         for index in 0..self.hypotheses.len() {
             self.convert(index, input.raw_covariance);
             let plan = &self.hypotheses[index].plan;
@@ -546,7 +551,7 @@ impl FormatChecker {
                 .collect();
             let present = facts.present(plan);
             let live = facts.live(plan);
-            self.ties.explain(
+            let culprit = self.ties.explain(
                 &mut self.search,
                 &TieQuery {
                     covariance: &self.converted,
@@ -558,12 +563,17 @@ impl FormatChecker {
                 &acn_pairs,
                 &mut explained,
             );
+            culprits.extend(culprit.map(|a| plan.source_channel(a)));
             if explained.iter().all(|&e| e) {
                 break;
             }
         }
         let mut flags = explained.into_iter();
         pairs.retain(|_| !flags.next().unwrap_or(false));
+        let channels = channel_count(self.order);
+        for culprit in culprits {
+            keep_copy_partners(pairs, culprit, input, channels);
+        }
     }
 
     /// When the covariance is a few strong components that do *not* fit plane waves under
@@ -704,6 +714,23 @@ fn restrict_to_culprits(
         .collect();
     if !copies.is_empty() {
         *pairs = copies;
+    }
+}
+
+/// Of the pairs that involve `culprit`, keeps only its same-level partners (the channel it
+/// is a copy of) when it has any; other pairs are left alone.
+fn keep_copy_partners(
+    pairs: &mut Vec<(usize, usize)>,
+    culprit: usize,
+    input: &FormatCheckInput,
+    channels: usize,
+) {
+    let power = |c: usize| input.raw_covariance[c * channels + c];
+    let same_level =
+        |a: usize, b: usize| (power(a) - power(b)).abs() <= 1e-3 * power(a).max(power(b));
+    let involves = |&(i, j): &(usize, usize)| i == culprit || j == culprit;
+    if pairs.iter().any(|&p| involves(&p) && same_level(p.0, p.1)) {
+        pairs.retain(|&p| !involves(&p) || same_level(p.0, p.1));
     }
 }
 
