@@ -387,3 +387,109 @@ fn mark_ties(
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::format::AmbiFormat;
+    use crate::sh::sh_sn3d;
+
+    /// Σ_k p_k y(d_k) y(d_k)ᵀ in ACN/SN3D: incoherent plane waves, no noise.
+    fn covariance(order: usize, sources: &[(Direction, f64)]) -> Vec<f64> {
+        let m = channel_count(order);
+        let mut out = vec![0.0; m * m];
+        for &(direction, power) in sources {
+            let y = sh_sn3d(order, direction);
+            for a in 0..m {
+                for b in 0..m {
+                    out[a * m + b] += power * y[a] * y[b];
+                }
+            }
+        }
+        out
+    }
+
+    fn query<'a>(covariance: &'a [f64], plan: &'a ConversionPlan, all: &'a [bool]) -> TieQuery<'a> {
+        TieQuery {
+            covariance,
+            plan,
+            present: all,
+            live: all,
+            effective_order: plan.order(),
+        }
+    }
+
+    #[test]
+    fn closed_forms_at_one_elevation_match_the_legendre_ratios() {
+        // AmbiX SN3D table (Nachbar et al. 2011, as in DESIGN.md): ACN 2 = sin e · W,
+        // ACN 6 = (3 sin² e − 1)/2 · W, ACN 12 = sin e (5 sin² e − 3)/2 · W,
+        // ACN 5 = √3 sin e · ACN 1, at any azimuth.
+        let order = 3;
+        let mut ties = GeometricTies::new(order);
+        let plan = ConversionPlan::to_sn3d(AmbiFormat::ACN_SN3D, order).unwrap();
+        let all = vec![true; 16];
+        for elevation_deg in [20.0, -8.0, 55.0] {
+            let sources: Vec<(Direction, f64)> = [60.0, 25.0, -10.0, -60.0]
+                .iter()
+                .zip([1.0, 0.5, 0.25, 2.0])
+                .map(|(&az, p)| (Direction::new(az, elevation_deg), p))
+                .collect();
+            let c = covariance(order, &sources);
+            let prediction = ties
+                .one_elevation(&query(&c, &plan, &all))
+                .expect("one elevation holds");
+            let s = f64::to_radians(elevation_deg).sin();
+            let g = &prediction.coefficient;
+            assert!((g[2] / g[0] - s).abs() < 1e-12);
+            assert!((g[6] / g[0] - (3.0 * s * s - 1.0) / 2.0).abs() < 1e-12);
+            assert!((g[12] / g[0] - s * (5.0 * s * s - 3.0) / 2.0).abs() < 1e-12);
+            assert!((g[5] / g[1] - 3f64.sqrt() * s).abs() < 1e-12);
+            assert_eq!(prediction.group[5], prediction.group[11]);
+            assert_ne!(prediction.group[1], prediction.group[3]);
+            // A second elevation among them breaks the model.
+            let mut mixed = sources.clone();
+            mixed.push((Direction::new(0.0, elevation_deg + 15.0), 0.5));
+            let c = covariance(order, &mixed);
+            assert!(ties.one_elevation(&query(&c, &plan, &all)).is_none());
+        }
+    }
+
+    #[test]
+    fn opposite_directions_differ_by_the_parity_of_the_order() {
+        // Y_nm(−u) = (−1)^n Y_nm(u); checked on the AmbiX closed forms at (−120°, −45°) and
+        // its antipode (60°, 45°): ACN 1 −√6/4 → +√6/4, ACN 4 3/8 → 3/8.
+        let near = sh_sn3d(3, Direction::new(-120.0, -45.0));
+        let far = sh_sn3d(3, Direction::new(60.0, 45.0));
+        assert!(
+            (near[1] + 6f64.sqrt() / 4.0).abs() < 1e-12
+                && (far[1] - 6f64.sqrt() / 4.0).abs() < 1e-12
+        );
+        assert!((near[4] - 0.375).abs() < 1e-12 && (far[4] - 0.375).abs() < 1e-12);
+        for a in 0..16 {
+            let sign = if order_degree(a).0 % 2 == 0 {
+                1.0
+            } else {
+                -1.0
+            };
+            assert!((far[a] - sign * near[a]).abs() < 1e-12, "acn {a}");
+        }
+        // The axis model holds for a source and its antipode at any powers, and not for two
+        // directions 90° apart.
+        let order = 3;
+        let mut ties = GeometricTies::new(order);
+        let plan = ConversionPlan::to_sn3d(AmbiFormat::ACN_SN3D, order).unwrap();
+        let all = vec![true; 16];
+        let axis = [
+            (Direction::new(80.0, 10.0), 1.0),
+            (Direction::new(-100.0, -10.0), 0.3),
+        ];
+        let c = covariance(order, &axis);
+        assert!(ties.one_axis(&query(&c, &plan, &all)).is_some());
+        let apart = [
+            (Direction::new(80.0, 10.0), 1.0),
+            (Direction::new(-10.0, 10.0), 0.3),
+        ];
+        let c = covariance(order, &apart);
+        assert!(ties.one_axis(&query(&c, &plan, &all)).is_none());
+    }
+}
