@@ -1168,7 +1168,7 @@ fn copies_beside_a_plane_wave_in_the_higher_orders_are_still_found() {
 #[test]
 fn cost_of_geometric_ties_printout() {
     // Speed figures, not assertions: `-- --nocapture cost_of_geometric_ties`. Order 7, each
-    // scene that reaches the models.
+    // scene that reaches the models (the check runs at 2 Hz).
     use fieldglass_dsp::format_check::FormatChecker;
     let order = 7;
     let scenes = [
@@ -1190,6 +1190,12 @@ fn cost_of_geometric_ties_printout() {
             "first order under a plane wave",
             first_order_under_higher_order(order, -20.0, 93),
         ),
+        ("first order under a plane wave, ACN 40 copied onto 30", {
+            // The slow path: the block search that names the copy.
+            let mut scene = first_order_under_higher_order(order, -20.0, 95);
+            scene.channels[30] = scene.channels[40].clone();
+            scene
+        }),
     ];
     let mut checker = FormatChecker::new(order).unwrap();
     for (name, scene) in scenes {

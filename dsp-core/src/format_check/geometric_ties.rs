@@ -290,13 +290,19 @@ fn noise(query: &TieQuery, a: usize) -> f64 {
 }
 
 /// Does tie a = r·b hold, with r the ratio of the predicted coefficients (the smaller over
-/// the larger, so r is bounded)?
+/// the larger, so r is bounded; 0 when both are predicted empty, so the smaller must then
+/// be noise)?
 fn tie_holds(query: &TieQuery, prediction: &Prediction, a: usize, b: usize) -> bool {
     let (ga, gb) = (prediction.coefficient[a], prediction.coefficient[b]);
-    let (a, b, r) = if ga.abs() <= gb.abs() {
-        (a, b, ga / gb)
+    let (a, b, small, large) = if ga.abs() <= gb.abs() {
+        (a, b, ga, gb)
     } else {
-        (b, a, gb / ga)
+        (b, a, gb, ga)
+    };
+    let r = if large.abs() < ZERO_COEFFICIENT {
+        0.0
+    } else {
+        small / large
     };
     let channels = query.plan.channels();
     let c = |i: usize, j: usize| query.covariance[i * channels + j];
@@ -307,7 +313,7 @@ fn tie_holds(query: &TieQuery, prediction: &Prediction, a: usize, b: usize) -> b
     residual <= allowance
 }
 
-/// Usable component: present, carrying signal, inside the effective order.
+/// Usable component: present and carrying signal.
 fn usable(query: &TieQuery, a: usize) -> bool {
     query.present[a] && query.live[a]
 }
@@ -319,7 +325,7 @@ fn judge(query: &TieQuery, prediction: &Prediction, energies: &[(f64, f64, f64)]
     let channels = prediction.coefficient.len();
     let c = |i: usize, j: usize| query.covariance[i * query.plan.channels() + j];
     let w = c(0, 0);
-    if !(w > 0.0) {
+    if w.is_nan() || w <= 0.0 {
         return false;
     }
     let mut predictions = 0usize;
@@ -466,7 +472,7 @@ mod tests {
         );
         assert!((near[4] - 0.375).abs() < 1e-12 && (far[4] - 0.375).abs() < 1e-12);
         for a in 0..16 {
-            let sign = if order_degree(a).0 % 2 == 0 {
+            let sign = if order_degree(a).0.is_multiple_of(2) {
                 1.0
             } else {
                 -1.0

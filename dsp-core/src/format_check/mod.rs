@@ -41,6 +41,13 @@
 //!   with it. When the strong components do not fit plane waves, the channel whose removal
 //!   makes them fit is named (with its same-level copy partner) rather than every
 //!   correlated pair.
+//! - **Other scene families** ([`geometric_ties`]): a pair is proportional by geometry when
+//!   every source lies on a level curve of the two harmonics' ratio. Three ordinary families
+//!   are tested as predictions about the converted covariance: all sources on one axis (a
+//!   source jumping to the opposite side), all at one elevation (pan automation at a fixed
+//!   height; the horizontal plane is its e = 0 case), and one to three plane waves present
+//!   only in the top orders (a lower-order recording under a higher-order panned source). A
+//!   pair is excused only when its family holds and its own ratio is the predicted one.
 //!
 //! Known-absent channels (`absent_channels`, e.g. the components a mixed-order FuMa file
 //! does not carry) are never silent or duplicate; they are left out of the eigen-analysis
@@ -424,15 +431,16 @@ impl FormatChecker {
         }
 
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
-        self.explain_by_geometric_ties(
+        let named = self.explain_by_geometric_ties(
             &mut result.duplicate_channels,
             &facts,
             input,
             effective_order,
         );
         // The masked search costs one eigen-analysis per channel and hypothesis: only when
-        // some correlated pair is left to name.
-        if !result.duplicate_channels.is_empty()
+        // some correlated pair is left to name and no copy has been named yet.
+        if !named
+            && !result.duplicate_channels.is_empty()
             && let Some(culprits) =
                 self.copied_into_plane_waves(&evidence, input, &excluded, effective_order)
         {
@@ -525,16 +533,18 @@ impl FormatChecker {
     }
 
     /// Drops the correlated pairs that a scene model of [`geometric_ties`] explains under
-    /// some hypothesis (one axis, one elevation, plane waves in the top orders only).
+    /// some hypothesis (one axis, one elevation, plane waves in the top orders only). True
+    /// when a channel copied into otherwise explained content was named (its pairs are then
+    /// cut to its copy partners).
     fn explain_by_geometric_ties(
         &mut self,
         pairs: &mut Vec<(usize, usize)>,
         facts: &ChannelFacts,
         input: &FormatCheckInput,
         effective_order: usize,
-    ) {
+    ) -> bool {
         if pairs.is_empty() {
-            return;
+            return false;
         }
         let mut explained = vec![false; pairs.len()];
         let mut culprits = Vec::new();
@@ -571,9 +581,10 @@ impl FormatChecker {
         let mut flags = explained.into_iter();
         pairs.retain(|_| !flags.next().unwrap_or(false));
         let channels = channel_count(self.order);
-        for culprit in culprits {
+        for &culprit in &culprits {
             keep_copy_partners(pairs, culprit, input, channels);
         }
+        !culprits.is_empty()
     }
 
     /// When the covariance is a few strong components that do *not* fit plane waves under
