@@ -215,7 +215,8 @@ impl GeometricTies {
     /// Blocks of orders n₀..N that are one to three plane waves on their own. When a block
     /// has that few strong components but they do not fit, a channel of a same-level pair (a
     /// copy keeps its source's level) whose removal makes them fit is the culprit: the
-    /// block's other pairs are explained and the culprit's ACN is returned.
+    /// block's other pairs are explained and the culprit's ACN is returned. Cost: one
+    /// eigen-analysis per block holding an unexplained pair, plus one per candidate.
     fn top_order_plane_waves(
         &mut self,
         search: &mut SteeringFitSearch,
@@ -232,7 +233,9 @@ impl GeometricTies {
             let (pa, pb) = (raw_power(a), raw_power(b));
             (pa - pb).abs() <= SAME_LEVEL_SHARE * pa.max(pb)
         };
-        for lowest in 1..=order {
+        // n₀ = 0 is the whole covariance: a plane-wave fit there has already cleared every
+        // pair, so it only serves the culprit search (a copy inside one to three plane waves).
+        for lowest in 0..=order {
             let in_block = |a: usize| a < channels && order_degree(a).0 >= lowest;
             let open = |k: usize| !explained[k] && in_block(pairs[k].0) && in_block(pairs[k].1);
             if !(0..pairs.len()).any(open) {
