@@ -1111,6 +1111,89 @@ fn copies_inside_a_source_panned_at_one_elevation_are_still_found() {
     }
 }
 
+/// Noise moved from elevation −30° to +60° at azimuth `azimuth_deg`, in steps of 480 frames.
+fn raised_source(
+    order: usize,
+    format: AmbiFormat,
+    azimuth_deg: f64,
+    level_db: f64,
+    seed: u64,
+) -> Scene {
+    let signal = Sequence(seed).noise(db(level_db));
+    let mut scene = Scene::new(order, format);
+    let step = 480;
+    for start in (0..FRAMES).step_by(step) {
+        let elevation_deg = -30.0 + 90.0 * start as f64 / FRAMES as f64;
+        let end = (start + step).min(FRAMES);
+        scene.add_segment(
+            Direction::new(azimuth_deg, elevation_deg),
+            &signal,
+            start..end,
+        );
+    }
+    scene
+}
+
+#[test]
+fn source_moved_up_and_down_at_one_azimuth_ties_opposite_degrees_by_geometry() {
+    // (n, m) and (n, −m) share N P_n^|m|(sin e) and differ by cos(|m|φ) against sin(|m|φ)
+    // (SN3D, DESIGN.md): proportional at every elevation.
+    let mut seed = 7600;
+    for (order, format) in [
+        (2, AmbiFormat::ACN_SN3D),
+        (3, AmbiFormat::FUMA),
+        (3, AmbiFormat::ACN_N3D),
+        (5, AmbiFormat::ACN_SN3D),
+    ] {
+        for azimuth_deg in [25.0, -140.0] {
+            for (storage, level_db) in DITHERED.into_iter().flat_map(|s| [(s, -20.0), (s, -50.0)]) {
+                seed += 1;
+                let scene =
+                    raised_source(order, format, azimuth_deg, level_db, seed).stored(storage, seed);
+                for assumed in [format, AmbiFormat::ACN_SN3D] {
+                    let check = scene.check(assumed);
+                    assert!(
+                        check.duplicate_channels.is_empty(),
+                        "order {order} {} at {azimuth_deg}° {level_db} dBFS {storage:?} \
+                         assumed {}: {:?}",
+                        format.label(),
+                        assumed.label(),
+                        check.duplicate_channels
+                    );
+                }
+            }
+        }
+    }
+    // The ties are there: ACN 5 against ACN 7 is tan φ (AmbiX closed forms, Nachbar et al.
+    // 2011: (√3/2) sin a sin 2e against (√3/2) cos a sin 2e).
+    let scene = raised_source(3, AmbiFormat::ACN_SN3D, 25.0, -20.0, 1);
+    let c = covariance(&scene.channels);
+    let ratio = |i: usize, j: usize| c[i * 16 + j] / c[j * 16 + j];
+    assert!((ratio(5, 7) - 25f64.to_radians().tan()).abs() < 1e-6);
+}
+
+#[test]
+fn copies_inside_a_source_moved_up_and_down_are_still_found() {
+    for storage in DITHERED {
+        let base = raised_source(3, AmbiFormat::ACN_SN3D, 25.0, -20.0, 7700);
+        // Within a pair of opposite degrees at the wrong ratio: ACN 15 copied onto ACN 9,
+        // where geometry predicts tan 75°.
+        let mut scene = base.clone();
+        scene.channels[9] = scene.channels[15].clone();
+        let check = scene.stored(storage, 7701).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(9, 15)], "{storage:?}");
+        // Across orders: ACN 13 (n = 3, m = 1) copied onto ACN 5 (n = 2, m = −1).
+        let mut scene = base.clone();
+        scene.channels[5] = scene.channels[13].clone();
+        let check = scene.stored(storage, 7702).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(
+            check.duplicate_channels,
+            vec![(5, 11), (5, 13)],
+            "{storage:?}"
+        );
+    }
+}
+
 /// A first-order talker (ACN 0–3 only) at (40°, 10°), `level_db` rms, under a full
 /// order-`order` source at (−100°, 30°), 6 dB down: the higher orders carry the one plane wave alone.
 fn first_order_under_higher_order(order: usize, level_db: f64, seed: u64) -> Scene {
@@ -1185,6 +1268,10 @@ fn cost_of_geometric_ties_printout() {
         (
             "panned at 20°",
             panned_source(order, AmbiFormat::ACN_SN3D, 20.0, -20.0, 92),
+        ),
+        (
+            "raised at 25°",
+            raised_source(order, AmbiFormat::ACN_SN3D, 25.0, -20.0, 96),
         ),
         (
             "first order under a plane wave",

@@ -22,6 +22,10 @@
 //!   degree m are proportional with ratios N_n^|m|P_n^|m|(sin e) / N_n'^|m|P_n'^|m|(sin e),
 //!   Z = sin e·W, and each sectoral pair carries Y_|m|,|m|² + Y_|m|,−|m|² = (N P_|m|^|m|(sin e))²
 //!   times W's energy, whatever the azimuths (cos² + sin² = 1). sin e comes from Z against W.
+//! - **One azimuth** (a source moved up and down at a fixed azimuth φ, or also at φ + 180°):
+//!   the components (n, m) and (n, −m) share P_n^|m|(sin e) and differ by cos(|m|φ) against
+//!   sin(|m|φ), a ratio that cos(|m|(φ + π)) = (−1)^m cos(|m|φ) leaves alone; φ is read from
+//!   the principal axis of X and Y. From order 2 only (see [`one_azimuth`]).
 //! - **Plane waves in the top orders only** (a first-order recording under a higher-order
 //!   panned source): the block of orders n₀..N is one to three plane waves, steering vectors
 //!   restricted to those orders, over a floor 30 dB down (the test of [`super::geometry`] on
@@ -39,7 +43,7 @@
 //! cos(m(φ+π)) = (−1)^m cos(mφ) gives Y_nm(−u) = (−1)^n Y_nm(u); the SN3D Legendre values
 //! come from [`sn3d_legendre`], itself tested against the closed forms of the AmbiX table.
 //!
-//! Cost: the axis and elevation models are O(M²) tie tests; the top-order model is at most
+//! Cost: the axis, elevation and azimuth models are O(M²) tie tests; the top-order model is at most
 //! one eigen-analysis per order (sizes (N+1)² − n₀²) and a steering fit, and runs only for
 //! blocks that hold an unexplained pair.
 
@@ -135,6 +139,9 @@ impl GeometricTies {
         if let Some(prediction) = self.one_elevation(query) {
             mark_ties(query, &prediction, pairs, explained);
         }
+        if let Some(prediction) = one_azimuth(query) {
+            mark_ties(query, &prediction, pairs, explained);
+        }
         self.top_order_plane_waves(search, query, pairs, explained)
     }
 
@@ -167,7 +174,8 @@ impl GeometricTies {
             c(0, 0),
             (1..4).map(|a| noise(query, a)).sum(),
         )];
-        judge(query, &prediction, &energy).then_some(prediction)
+        // u is read from the first-order ties: two of them hold by construction.
+        judge(query, &prediction, &energy, 2).then_some(prediction)
     }
 
     /// All sources at one elevation: equal-m components tied with Legendre ratios.
@@ -209,7 +217,8 @@ impl GeometricTies {
                 ))
             })
             .collect();
-        judge(query, &prediction, &energy).then_some(prediction)
+        // sin e is read from the Z–W tie.
+        judge(query, &prediction, &energy, 1).then_some(prediction)
     }
 
     /// Blocks of orders n₀..N that are one to three plane waves on their own. When a block
@@ -287,6 +296,33 @@ impl GeometricTies {
     }
 }
 
+/// All sources on one vertical half-plane pair (azimuths φ and φ + 180°): each (n, m) is tied
+/// to (n, −m) with ratio sin(|m|φ)/cos(|m|φ). At first order the only tie, Y against X, is
+/// the one φ is read from, so the model needs order 2 or more to predict anything (a first-
+/// order copy of X onto Y is exactly a field in the 45° vertical plane).
+fn one_azimuth(query: &TieQuery) -> Option<Prediction> {
+    let order = query.effective_order;
+    if order < 2 || !(usable(query, 1) && usable(query, 3)) {
+        return None;
+    }
+    let c = |a: usize, b: usize| query.covariance[a * query.plan.channels() + b];
+    // Principal axis of the horizontal dipoles (X, Y) ∝ (cos φ, sin φ), φ modulo 180°.
+    let azimuth_rad = 0.5 * (2.0 * c(1, 3)).atan2(c(3, 3) - c(1, 1));
+    let channels = channel_count(order);
+    let mut group = Vec::with_capacity(channels);
+    let mut coefficient = Vec::with_capacity(channels);
+    for a in 0..channels {
+        let (n, m) = order_degree(a);
+        let degree = m.unsigned_abs() as usize;
+        group.push((m != 0).then_some(n * (order + 1) + degree));
+        let angle = degree as f64 * azimuth_rad;
+        coefficient.push(if m < 0 { angle.sin() } else { angle.cos() });
+    }
+    let prediction = Prediction { group, coefficient };
+    // φ is read from the Y–X tie.
+    judge(query, &prediction, &[], 1).then_some(prediction)
+}
+
 /// Noise allowance of a converted channel (as in the horizontal test).
 fn noise(query: &TieQuery, a: usize) -> f64 {
     HORIZONTAL_NOISE_MEAN_SQUARE * query.plan.gain(a).powi(2)
@@ -323,8 +359,15 @@ fn usable(query: &TieQuery, a: usize) -> bool {
 
 /// Counts the model's predictions (every tie inside a group, every component of a group
 /// predicted empty, the energies given as (measured, predicted, noise)) and says whether at
-/// most a quarter of them failed.
-fn judge(query: &TieQuery, prediction: &Prediction, energies: &[(f64, f64, f64)]) -> bool {
+/// most a quarter of them failed. `read_from` predictions hold by construction (the model's
+/// parameters were read from them), so more than that many must have been tested: a model
+/// whose other predictions all fall on silent channels has shown nothing.
+fn judge(
+    query: &TieQuery,
+    prediction: &Prediction,
+    energies: &[(f64, f64, f64)],
+    read_from: usize,
+) -> bool {
     let channels = prediction.coefficient.len();
     let c = |i: usize, j: usize| query.covariance[i * query.plan.channels() + j];
     let w = c(0, 0);
@@ -370,7 +413,7 @@ fn judge(query: &TieQuery, prediction: &Prediction, energies: &[(f64, f64, f64)]
     for &(measured, predicted, noise) in energies {
         tally((measured - predicted).abs() <= ENERGY_TOLERANCE_SHARE * predicted + noise);
     }
-    predictions > 0 && violations <= (predictions - 1) / 4
+    predictions > read_from && violations <= (predictions - 1) / 4
 }
 
 /// Marks the pairs inside one group of a model that holds whose own tie holds.

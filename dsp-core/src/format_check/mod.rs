@@ -45,7 +45,8 @@
 //!   every source lies on a level curve of the two harmonics' ratio. Three ordinary families
 //!   are tested as predictions about the converted covariance: all sources on one axis (a
 //!   source jumping to the opposite side), all at one elevation (pan automation at a fixed
-//!   height; the horizontal plane is its e = 0 case), and one to three plane waves present
+//!   height; the horizontal plane is its e = 0 case), all at one azimuth (a source moved
+//!   up and down), and one to three plane waves present
 //!   only in the top orders (a lower-order recording under a higher-order panned source). A
 //!   pair is excused only when its family holds and its own ratio is the predicted one.
 //!
@@ -111,6 +112,13 @@ pub mod score_constants {
     /// 0.68 s at 48 kHz, i.e. ~64 half-overlapped STFT frames, enough for the per-order
     /// energies to settle within ~0.5 dB on noise-like content.
     pub const MIN_FRAMES_FOR_VERDICT: u64 = 32_768;
+    /// The scene families of [`geometric_ties`](super::geometric_ties) are tried only under
+    /// readings at least this probable: a family can fit a misread stream by accident (a
+    /// horizontal scene read as FuMa with a copied channel looks like a source moved up and
+    /// down), and a copy excused under a reading the data rule out would be hidden for
+    /// nothing. The level is our own choice: 1 % is well below any reading the check
+    /// would report, far above the 1e-10 of readings the data rule out.
+    pub const PLAUSIBLE_FOR_GEOMETRY: f64 = 0.01;
 }
 
 use score_constants::*;
@@ -431,11 +439,17 @@ impl FormatChecker {
         }
 
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
+        let plausible: Vec<bool> = result
+            .hypotheses
+            .iter()
+            .map(|h| h.probability >= PLAUSIBLE_FOR_GEOMETRY)
+            .collect();
         let named = self.explain_by_geometric_ties(
             &mut result.duplicate_channels,
             &facts,
             input,
             effective_order,
+            &plausible,
         );
         // The masked search costs one eigen-analysis per channel and hypothesis: only when
         // some correlated pair is left to name and no copy has been named yet.
@@ -533,7 +547,8 @@ impl FormatChecker {
     }
 
     /// Drops the correlated pairs that a scene model of [`geometric_ties`] explains under
-    /// some hypothesis (one axis, one elevation, plane waves in the top orders only). True
+    /// some `plausible` hypothesis (indexed like the hypotheses; one axis, one elevation, one
+    /// azimuth, plane waves in the top orders only). True
     /// when a channel copied into otherwise explained content was named (its pairs are then
     /// cut to its copy partners).
     fn explain_by_geometric_ties(
@@ -542,13 +557,14 @@ impl FormatChecker {
         facts: &ChannelFacts,
         input: &FormatCheckInput,
         effective_order: usize,
+        plausible: &[bool],
     ) -> bool {
         if pairs.is_empty() {
             return false;
         }
         let mut explained = vec![false; pairs.len()];
         let mut culprits = Vec::new();
-        for index in 0..self.hypotheses.len() {
+        for index in (0..self.hypotheses.len()).filter(|&i| plausible[i]) {
             self.convert(index, input.raw_covariance);
             let plan = &self.hypotheses[index].plan;
             let mut acn_of_input = vec![0; plan.channels()];
