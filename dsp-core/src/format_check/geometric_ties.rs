@@ -25,27 +25,36 @@
 //! - **One azimuth** (a source moved up and down at a fixed azimuth φ, or also at φ + 180°):
 //!   the components (n, m) and (n, −m) share P_n^|m|(sin e) and differ by cos(|m|φ) against
 //!   sin(|m|φ), a ratio that cos(|m|(φ + π)) = (−1)^m cos(|m|φ) leaves alone; φ is read from
-//!   the principal axis of X and Y. From order 2 only (see [`one_azimuth`]).
+//!   the principal axis of X and Y. From order 2 only: at first order the Y–X tie is all
+//!   there is, and a copy of X onto Y is exactly a field in the 45° vertical plane.
 //! - **Plane waves in the top orders only** (a first-order recording under a higher-order
 //!   panned source): the block of orders n₀..N is one to three plane waves, steering vectors
 //!   restricted to those orders, over a floor 30 dB down (the test of [`super::geometry`] on
 //!   that block); every pair inside the block is then explained.
 //!
 //! A model holds when at most a quarter of its predictions fail (a copied or corrupted
-//! channel breaks its own ties but not the others'), and at most that; a pair is explained
-//! only if its own tie holds too. A copy across degrees, across parities or out of the
-//! block, or a copy whose gain is not the predicted ratio, stays a duplicate.
+//! channel breaks its own ties but not the others') and at least one prediction beyond the
+//! ties its parameters were read from was tested; a pair is explained only if its own tie
+//! holds too. A copy across degrees, across parities or out of the block, or a copy whose
+//! gain is not the predicted ratio, stays a duplicate. When a block of orders n₀..N (n₀ = 0:
+//! the whole covariance) has at most three strong components that do not fit plane waves,
+//! each channel of a same-level correlated pair is removed in turn; the one whose removal
+//! makes the block fit is named as the copy.
 //!
 //! Sources: the real SH in SN3D with no Condon–Shortley phase as in DESIGN.md (the AmbiX
 //! convention, Nachbar et al. 2011); the parity P_n^m(−x) = (−1)^(n+m) P_n^m(x) of the
 //! associated Legendre functions (Abramowitz & Stegun, *Handbook of Mathematical
 //! Functions*, ch. 8, and DLMF §14; from memory, no equation number checked), which with
 //! cos(m(φ+π)) = (−1)^m cos(mφ) gives Y_nm(−u) = (−1)^n Y_nm(u); the SN3D Legendre values
-//! come from [`sn3d_legendre`], itself tested against the closed forms of the AmbiX table.
+//! come from [`sn3d_legendre`], on which the SH evaluator is built and which the SH tests
+//! check against the closed forms of the AmbiX table. The unit tests below check the
+//! predicted ratios and the parity against those closed forms.
 //!
-//! Cost: the axis, elevation and azimuth models are O(M²) tie tests; the top-order model is at most
-//! one eigen-analysis per order (sizes (N+1)² − n₀²) and a steering fit, and runs only for
-//! blocks that hold an unexplained pair.
+//! Cost: the axis, elevation and azimuth models are O(M²) tie tests; the block model is at
+//! most one eigen-analysis per order (sizes (N+1)² − n₀²) with a steering fit, only for
+//! blocks that hold an unexplained pair, plus one per same-level candidate when a block
+//! does not fit. Printed at order 7 by `cost_of_geometric_ties_printout` in
+//! `tests/format_check_geometry.rs` (2 to 21 ms per check).
 
 use super::geometry::{self, GeometryQuery};
 use super::horizontal::HORIZONTAL_NOISE_MEAN_SQUARE;

@@ -42,13 +42,15 @@
 //!   makes them fit is named (with its same-level copy partner) rather than every
 //!   correlated pair.
 //! - **Other scene families** ([`geometric_ties`]): a pair is proportional by geometry when
-//!   every source lies on a level curve of the two harmonics' ratio. Three ordinary families
-//!   are tested as predictions about the converted covariance: all sources on one axis (a
-//!   source jumping to the opposite side), all at one elevation (pan automation at a fixed
-//!   height; the horizontal plane is its e = 0 case), all at one azimuth (a source moved
-//!   up and down), and one to three plane waves present
-//!   only in the top orders (a lower-order recording under a higher-order panned source). A
-//!   pair is excused only when its family holds and its own ratio is the predicted one.
+//!   every source lies on a level curve of the two harmonics' ratio. Four ordinary families
+//!   are tested as predictions about the converted covariance, under the readings at least
+//!   [`PLAUSIBLE_FOR_GEOMETRY`] probable: all
+//!   sources on one axis (a source jumping to the opposite side), all at one elevation (pan
+//!   automation at a fixed height; the horizontal plane is its e = 0 case), all at one
+//!   azimuth (a source moved up and down), and one to three plane waves present only in the
+//!   top orders (a lower-order recording under a higher-order panned source). A pair is
+//!   excused only when its family holds and its own ratio is the predicted one; a channel
+//!   copied into such content is named with its copy partner.
 //!
 //! Known-absent channels (`absent_channels`, e.g. the components a mixed-order FuMa file
 //! does not carry) are never silent or duplicate; they are left out of the eigen-analysis
@@ -546,11 +548,10 @@ impl FormatChecker {
         result.duplicate_channels = pairs;
     }
 
-    /// Drops the correlated pairs that a scene model of [`geometric_ties`] explains under
-    /// some `plausible` hypothesis (indexed like the hypotheses; one axis, one elevation, one
-    /// azimuth, plane waves in the top orders only). True
-    /// when a channel copied into otherwise explained content was named (its pairs are then
-    /// cut to its copy partners).
+    /// Drops the correlated pairs that a scene family of [`geometric_ties`] explains under
+    /// some `plausible` hypothesis (flags indexed like the hypotheses). True when a channel
+    /// copied into otherwise explained content was named (its pairs are then cut to its copy
+    /// partners).
     fn explain_by_geometric_ties(
         &mut self,
         pairs: &mut Vec<(usize, usize)>,
