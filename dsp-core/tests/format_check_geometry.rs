@@ -18,6 +18,12 @@
 //!   file description (from memory); FuMa channel order as in DESIGN.md.
 //! - TPDF dither of ±1 LSB adds q²/6 to the q²/12 of rounding (common practice; Lipshitz,
 //!   Wannamaker & Vanderkooy 1992, from memory).
+//! - Scene families beyond the horizontal plane (`format_check::geometric_ties`): at one
+//!   elevation the equal-m components differ by N_n^|m| P_n^|m|(sin e) only, at one azimuth
+//!   (n, m) and (n, −m) by cos(|m|φ) against sin(|m|φ) (SN3D definitions of DESIGN.md;
+//!   ratios checked on the AmbiX closed forms, Nachbar et al. 2011); on one axis
+//!   Y_nm(−u) = (−1)^n Y_nm(u) from the parity P_n^m(−x) = (−1)^(n+m) P_n^m(x) (A&S ch. 8,
+//!   DLMF §14, from memory).
 
 use fieldglass_dsp::encoder::PlaneWaveEncoder;
 use fieldglass_dsp::engine::AnalysisSettings;
