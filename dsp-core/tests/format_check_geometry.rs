@@ -1237,6 +1237,42 @@ fn plane_wave_only_in_the_higher_orders_ties_them_by_geometry() {
 }
 
 #[test]
+fn two_plane_waves_at_one_elevation_in_the_higher_orders_tie_them_by_geometry() {
+    // Two independent sources at elevation 30° over a first-order talker: in orders 2 and up
+    // the equal-m pairs are proportional (SN3D definitions, DESIGN.md), while W and Z carry
+    // the talker too, so only the block of the top orders explains them.
+    for storage in DITHERED {
+        for order in [3, 4] {
+            let mut random = Sequence(7800 + order as u64);
+            let talker = random.noise(db(-20.0));
+            let left = random.noise(db(-26.0));
+            let right = random.noise(db(-28.0));
+            let mut scene = Scene::new(order, AmbiFormat::ACN_SN3D);
+            scene.add(Direction::new(-100.0, 30.0), &left);
+            scene.add(Direction::new(60.0, 30.0), &right);
+            let mut first = PlaneWaveEncoder::new(1, AmbiFormat::ACN_SN3D).unwrap();
+            let mut outputs: Vec<&mut [f32]> = scene.channels[..4]
+                .iter_mut()
+                .map(|c| c.as_mut_slice())
+                .collect();
+            first.add_to(Direction::new(40.0, 10.0), 1.0, &talker, &mut outputs);
+            let scene = scene.stored(storage, 7800);
+            let c = covariance(&scene.channels);
+            let m = scene.channels.len();
+            let correlation =
+                |i: usize, j: usize| c[i * m + j] / (c[i * m + i] * c[j * m + j]).sqrt();
+            assert!(correlation(6, 12).abs() > 0.9999 && correlation(0, 2).abs() < 0.99);
+            let check = scene.check(AmbiFormat::ACN_SN3D);
+            assert!(
+                check.duplicate_channels.is_empty(),
+                "order {order} {storage:?}: {:?}",
+                check.duplicate_channels
+            );
+        }
+    }
+}
+
+#[test]
 fn copies_beside_a_plane_wave_in_the_higher_orders_are_still_found() {
     for storage in DITHERED {
         // Z copied onto X in the first-order part.
