@@ -319,9 +319,7 @@ impl GeometricTies {
         }
         None
     }
-}
 
-impl GeometricTies {
     /// Are the plane waves found in `block` mutually incoherent, i.e. is the block's
     /// covariance Y S Yᵀ with S (the sources' covariance, least squares over the block's
     /// steering vectors Y) nearly diagonal? One source is always. The span test alone lets
