@@ -18,6 +18,12 @@
 //!   file description (from memory); FuMa channel order as in DESIGN.md.
 //! - TPDF dither of ±1 LSB adds q²/6 to the q²/12 of rounding (common practice; Lipshitz,
 //!   Wannamaker & Vanderkooy 1992, from memory).
+//! - Scene families beyond the horizontal plane (`format_check::geometric_ties`): at one
+//!   elevation the equal-m components differ by N_n^|m| P_n^|m|(sin e) only, at one azimuth
+//!   (n, m) and (n, −m) by cos(|m|φ) against sin(|m|φ) (SN3D definitions of DESIGN.md;
+//!   ratios checked on the AmbiX closed forms, Nachbar et al. 2011); on one axis
+//!   Y_nm(−u) = (−1)^n Y_nm(u) from the parity P_n^m(−x) = (−1)^(n+m) P_n^m(x) (A&S ch. 8,
+//!   DLMF §14, from memory).
 
 use fieldglass_dsp::encoder::PlaneWaveEncoder;
 use fieldglass_dsp::engine::AnalysisSettings;
@@ -897,6 +903,464 @@ fn cost_of_geometry_cases_printout() {
         }
         println!(
             "format check order {order}, {name}: {:.2} ms each; duplicates {:?}",
+            started.elapsed().as_secs_f64() * 1e3 / runs as f64,
+            last.unwrap().duplicate_channels
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Ties that a scene's geometry explains beyond the horizontal plane and one to three plane
+// waves: one axis, one elevation, plane waves in the top orders only (`geometric_ties`).
+// ---------------------------------------------------------------------------------------------
+
+impl Scene {
+    /// Adds `signal` from `direction` over frames `range` only (a moving source's segment).
+    fn add_segment(&mut self, direction: Direction, signal: &[f32], range: std::ops::Range<usize>) {
+        let mut outputs: Vec<&mut [f32]> = self
+            .channels
+            .iter_mut()
+            .map(|c| &mut c[range.clone()])
+            .collect();
+        self.encoder
+            .add_to(direction, 1.0, &signal[range], &mut outputs);
+    }
+}
+
+/// Noise that jumps from `first` to the opposite side after half the frames.
+fn jumping_source(
+    order: usize,
+    format: AmbiFormat,
+    first: Direction,
+    level_db: f64,
+    seed: u64,
+) -> Scene {
+    let u = first.to_cartesian();
+    let opposite = Direction::from_cartesian([-u[0], -u[1], -u[2]]);
+    let signal = Sequence(seed).noise(db(level_db));
+    let mut scene = Scene::new(order, format);
+    scene.add_segment(first, &signal, 0..FRAMES / 2);
+    scene.add_segment(opposite, &signal, FRAMES / 2..FRAMES);
+    scene
+}
+
+/// Noise panned from azimuth +60° to −60° at `elevation_deg`, in steps of 480 frames (10 ms
+/// at 48 kHz), as pan automation moves a source.
+fn panned_source(
+    order: usize,
+    format: AmbiFormat,
+    elevation_deg: f64,
+    level_db: f64,
+    seed: u64,
+) -> Scene {
+    let signal = Sequence(seed).noise(db(level_db));
+    let mut scene = Scene::new(order, format);
+    let step = 480;
+    for start in (0..FRAMES).step_by(step) {
+        let azimuth_deg = 60.0 - 120.0 * start as f64 / FRAMES as f64;
+        let end = (start + step).min(FRAMES);
+        scene.add_segment(
+            Direction::new(azimuth_deg, elevation_deg),
+            &signal,
+            start..end,
+        );
+    }
+    scene
+}
+
+const DITHERED: [Storage; 2] = [Storage::Pcm(24, true), Storage::Pcm(16, true)];
+
+#[test]
+fn source_jumping_to_the_opposite_side_ties_its_dipoles_by_geometry() {
+    // Y_nm(−u) = (−1)^n Y_nm(u) (parity of the real SH: P_n^m(−x) = (−1)^(n+m) P_n^m(x),
+    // A&S ch. 8 / DLMF §14, from memory, with cos(m(φ+π)) = (−1)^m cos(mφ)): at first order
+    // X, Y, Z are u·(s₁ − s₂) over the programme, exactly proportional, while W = s₁ + s₂.
+    let first = Direction::new(80.0, 10.0);
+    let mut seed = 7000;
+    for (order, format) in [
+        (1, AmbiFormat::ACN_SN3D),
+        (1, AmbiFormat::FUMA),
+        (2, AmbiFormat::ACN_N3D),
+        (3, AmbiFormat::ACN_SN3D),
+    ] {
+        for (storage, level_db) in DITHERED.into_iter().flat_map(|s| [(s, -20.0), (s, -50.0)]) {
+            seed += 1;
+            let scene = jumping_source(order, format, first, level_db, seed).stored(storage, seed);
+            // The ties are there (so the test is not vacuous): X, Y, Z pairwise.
+            let c = covariance(&scene.channels);
+            let m = scene.channels.len();
+            let [y, z, x] = [1, 2, 3].map(|acn| format.ordering.channel_of_acn(acn).unwrap());
+            let correlation =
+                |i: usize, j: usize| c[i * m + j] / (c[i * m + i] * c[j * m + j]).sqrt();
+            if level_db == -20.0 {
+                assert!(correlation(x, y).abs() > 0.9999 && correlation(y, z).abs() > 0.9999);
+            }
+            for assumed in [format, AmbiFormat::ACN_SN3D] {
+                let check = scene.check(assumed);
+                assert!(
+                    check.duplicate_channels.is_empty(),
+                    "order {order} {} {level_db} dBFS {storage:?} assumed {}: {:?}",
+                    format.label(),
+                    assumed.label(),
+                    check.duplicate_channels
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn copies_inside_a_source_jumping_sides_are_still_found() {
+    for storage in DITHERED {
+        // First order: X copied onto Y leaves the dipoles proportional but breaks
+        // X² + Y² + Z² = W² (SN3D; here 0.09·W², far from the 1, 2 or 3 of SN3D, maxN or N3D
+        // read as SN3D), so the copy is reported (with the dipole ties the broken model no
+        // longer explains). Not every first-order copy can be told from geometry: W copied
+        // onto Z of this scene, read as ACN/maxN, is exactly two sources at (a, 45°) and
+        // (a + 180°, 45°).
+        let mut scene = jumping_source(
+            1,
+            AmbiFormat::ACN_SN3D,
+            Direction::new(80.0, 10.0),
+            -20.0,
+            7100,
+        );
+        scene.channels[1] = scene.channels[3].clone();
+        let check = scene.stored(storage, 7100).check(AmbiFormat::ACN_SN3D);
+        assert!(
+            check.duplicate_channels.contains(&(1, 3)),
+            "{storage:?}: {check:?}"
+        );
+        let raised = findings(&check, 1, AmbiFormat::ACN_SN3D);
+        assert!(raised.contains(&(Severity::Warning, FindingCode::DuplicateChannels)));
+
+        // Third order: ACN 15 copied onto ACN 9 (both odd orders, but at a gain of 1 instead
+        // of the ratio Y_9(u)/Y_15(u)): that pair alone.
+        let mut scene = jumping_source(
+            3,
+            AmbiFormat::ACN_SN3D,
+            Direction::new(80.0, 10.0),
+            -20.0,
+            7101,
+        );
+        scene.channels[9] = scene.channels[15].clone();
+        let check = scene.stored(storage, 7101).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(9, 15)], "{storage:?}");
+    }
+}
+
+#[test]
+fn source_panned_at_one_elevation_ties_equal_degree_channels_by_geometry() {
+    // Y_nm(az, e) = N_n^|m| P_n^|m|(sin e) trig(m·az) (SN3D, DESIGN.md): at a fixed elevation
+    // every pair of equal m is proportional, whatever the azimuths; 20° as in the issue, and a
+    // low and a steep one.
+    let mut seed = 7200;
+    for (order, format) in [
+        (1, AmbiFormat::ACN_SN3D),
+        (2, AmbiFormat::ACN_MAXN),
+        (3, AmbiFormat::ACN_SN3D),
+        (3, AmbiFormat::FUMA),
+        (5, AmbiFormat::ACN_N3D),
+    ] {
+        for elevation_deg in [20.0, -8.0, 55.0] {
+            for (storage, level_db) in DITHERED.into_iter().flat_map(|s| [(s, -20.0), (s, -50.0)]) {
+                seed += 1;
+                let scene = panned_source(order, format, elevation_deg, level_db, seed)
+                    .stored(storage, seed);
+                for assumed in [format, AmbiFormat::ACN_SN3D] {
+                    let check = scene.check(assumed);
+                    assert!(
+                        check.duplicate_channels.is_empty(),
+                        "order {order} {} at {elevation_deg}° {level_db} dBFS {storage:?} \
+                         assumed {}: {:?}",
+                        format.label(),
+                        assumed.label(),
+                        check.duplicate_channels
+                    );
+                }
+            }
+        }
+    }
+    // The ties are there: at 20°, ACN 12 = W·sin e·(5 sin² e − 3)/2 and ACN 5 = Y·√3·sin e
+    // (closed forms of the AmbiX SN3D table, Nachbar et al. 2011), and no pair of different m.
+    let scene = panned_source(3, AmbiFormat::ACN_SN3D, 20.0, -20.0, 1);
+    let c = covariance(&scene.channels);
+    let m = 16;
+    let ratio = |i: usize, j: usize| c[i * m + j] / c[j * m + j];
+    let s = 20f64.to_radians().sin();
+    assert!((ratio(12, 0) - s * (5.0 * s * s - 3.0) / 2.0).abs() < 1e-6);
+    assert!((ratio(5, 1) - 3f64.sqrt() * s).abs() < 1e-6);
+    let correlation = |i: usize, j: usize| c[i * m + j] / (c[i * m + i] * c[j * m + j]).sqrt();
+    assert!(correlation(1, 3).abs() < 0.99, "{}", correlation(1, 3));
+}
+
+#[test]
+fn copies_inside_a_source_panned_at_one_elevation_are_still_found() {
+    for storage in DITHERED {
+        let base = panned_source(3, AmbiFormat::ACN_SN3D, 20.0, -20.0, 7300);
+        // Across degrees: ACN 15 (m = 3) copied onto ACN 9 (m = −3).
+        let mut scene = base.clone();
+        scene.channels[9] = scene.channels[15].clone();
+        let check = scene.stored(storage, 7301).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(9, 15)], "{storage:?}");
+        // Within a degree at the wrong ratio: Z (ACN 2) copied onto ACN 6, where geometry
+        // predicts ACN 6 = Z·(3 sin² e − 1)/(2 sin e). The m = 0 ties of W, Z and ACN 12 stay
+        // explained; every pair with the copy is reported.
+        let mut scene = base.clone();
+        scene.channels[6] = scene.channels[2].clone();
+        let check = scene.stored(storage, 7302).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(
+            check.duplicate_channels,
+            vec![(0, 6), (2, 6), (6, 12)],
+            "{storage:?}"
+        );
+    }
+}
+
+/// Noise moved from elevation −30° to +60° at azimuth `azimuth_deg`, in steps of 480 frames.
+fn raised_source(
+    order: usize,
+    format: AmbiFormat,
+    azimuth_deg: f64,
+    level_db: f64,
+    seed: u64,
+) -> Scene {
+    let signal = Sequence(seed).noise(db(level_db));
+    let mut scene = Scene::new(order, format);
+    let step = 480;
+    for start in (0..FRAMES).step_by(step) {
+        let elevation_deg = -30.0 + 90.0 * start as f64 / FRAMES as f64;
+        let end = (start + step).min(FRAMES);
+        scene.add_segment(
+            Direction::new(azimuth_deg, elevation_deg),
+            &signal,
+            start..end,
+        );
+    }
+    scene
+}
+
+#[test]
+fn source_moved_up_and_down_at_one_azimuth_ties_opposite_degrees_by_geometry() {
+    // (n, m) and (n, −m) share N P_n^|m|(sin e) and differ by cos(|m|φ) against sin(|m|φ)
+    // (SN3D, DESIGN.md): proportional at every elevation.
+    let mut seed = 7600;
+    for (order, format) in [
+        (2, AmbiFormat::ACN_SN3D),
+        (3, AmbiFormat::FUMA),
+        (3, AmbiFormat::ACN_N3D),
+        (5, AmbiFormat::ACN_SN3D),
+    ] {
+        for azimuth_deg in [25.0, -140.0] {
+            for (storage, level_db) in DITHERED.into_iter().flat_map(|s| [(s, -20.0), (s, -50.0)]) {
+                seed += 1;
+                let scene =
+                    raised_source(order, format, azimuth_deg, level_db, seed).stored(storage, seed);
+                for assumed in [format, AmbiFormat::ACN_SN3D] {
+                    let check = scene.check(assumed);
+                    assert!(
+                        check.duplicate_channels.is_empty(),
+                        "order {order} {} at {azimuth_deg}° {level_db} dBFS {storage:?} \
+                         assumed {}: {:?}",
+                        format.label(),
+                        assumed.label(),
+                        check.duplicate_channels
+                    );
+                }
+            }
+        }
+    }
+    // The ties are there: ACN 5 against ACN 7 is tan φ (AmbiX closed forms, Nachbar et al.
+    // 2011: (√3/2) sin a sin 2e against (√3/2) cos a sin 2e).
+    let scene = raised_source(3, AmbiFormat::ACN_SN3D, 25.0, -20.0, 1);
+    let c = covariance(&scene.channels);
+    let ratio = |i: usize, j: usize| c[i * 16 + j] / c[j * 16 + j];
+    assert!((ratio(5, 7) - 25f64.to_radians().tan()).abs() < 1e-6);
+}
+
+#[test]
+fn copies_inside_a_source_moved_up_and_down_are_still_found() {
+    for storage in DITHERED {
+        let base = raised_source(3, AmbiFormat::ACN_SN3D, 25.0, -20.0, 7700);
+        // Within a pair of opposite degrees at the wrong ratio: ACN 15 copied onto ACN 9,
+        // where geometry predicts tan 75°.
+        let mut scene = base.clone();
+        scene.channels[9] = scene.channels[15].clone();
+        let check = scene.stored(storage, 7701).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(9, 15)], "{storage:?}");
+        // Across orders: ACN 13 (n = 3, m = 1) copied onto ACN 5 (n = 2, m = −1).
+        let mut scene = base.clone();
+        scene.channels[5] = scene.channels[13].clone();
+        let check = scene.stored(storage, 7702).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(
+            check.duplicate_channels,
+            vec![(5, 11), (5, 13)],
+            "{storage:?}"
+        );
+    }
+}
+
+/// A first-order talker (ACN 0–3 only) at (40°, 10°), `level_db` rms, under a full
+/// order-`order` source at (−100°, 30°), 6 dB down: the higher orders carry the one plane wave alone.
+fn first_order_under_higher_order(order: usize, level_db: f64, seed: u64) -> Scene {
+    let mut random = Sequence(seed);
+    let talker = random.noise(db(level_db));
+    let high = random.noise(db(level_db - 6.0));
+    let mut scene = Scene::new(order, AmbiFormat::ACN_SN3D);
+    scene.add(Direction::new(-100.0, 30.0), &high);
+    let mut first = PlaneWaveEncoder::new(1, AmbiFormat::ACN_SN3D).unwrap();
+    let mut outputs: Vec<&mut [f32]> = scene.channels[..4]
+        .iter_mut()
+        .map(|c| c.as_mut_slice())
+        .collect();
+    first.add_to(Direction::new(40.0, 10.0), 1.0, &talker, &mut outputs);
+    scene
+}
+
+#[test]
+fn plane_wave_only_in_the_higher_orders_ties_them_by_geometry() {
+    // Channels 4..16 carry B = y(d)·s of one plane wave only (definition of the encoder), so
+    // every pair among them is proportional; the block is that plane wave.
+    let mut seed = 7400;
+    for order in [2, 3, 5] {
+        for (storage, level_db) in DITHERED.into_iter().flat_map(|s| [(s, -20.0), (s, -50.0)]) {
+            seed += 1;
+            let scene = first_order_under_higher_order(order, level_db, seed).stored(storage, seed);
+            let check = scene.check(AmbiFormat::ACN_SN3D);
+            assert!(
+                check.duplicate_channels.is_empty(),
+                "order {order} {level_db} dBFS {storage:?}: {:?}",
+                check.duplicate_channels
+            );
+        }
+    }
+}
+
+#[test]
+fn two_plane_waves_at_one_elevation_in_the_higher_orders_tie_them_by_geometry() {
+    // Two independent sources at elevation 30° over a first-order talker: in orders 2 and up
+    // the equal-m pairs are proportional (SN3D definitions, DESIGN.md), while W and Z carry
+    // the talker too, so only the block of the top orders explains them.
+    for storage in DITHERED {
+        for order in [3, 4] {
+            let mut random = Sequence(7800 + order as u64);
+            let talker = random.noise(db(-20.0));
+            let left = random.noise(db(-26.0));
+            let right = random.noise(db(-28.0));
+            let mut scene = Scene::new(order, AmbiFormat::ACN_SN3D);
+            scene.add(Direction::new(-100.0, 30.0), &left);
+            scene.add(Direction::new(60.0, 30.0), &right);
+            let mut first = PlaneWaveEncoder::new(1, AmbiFormat::ACN_SN3D).unwrap();
+            let mut outputs: Vec<&mut [f32]> = scene.channels[..4]
+                .iter_mut()
+                .map(|c| c.as_mut_slice())
+                .collect();
+            first.add_to(Direction::new(40.0, 10.0), 1.0, &talker, &mut outputs);
+            let scene = scene.stored(storage, 7800);
+            let c = covariance(&scene.channels);
+            let m = scene.channels.len();
+            let correlation =
+                |i: usize, j: usize| c[i * m + j] / (c[i * m + i] * c[j * m + j]).sqrt();
+            assert!(correlation(6, 12).abs() > 0.9999 && correlation(0, 2).abs() < 0.99);
+            let check = scene.check(AmbiFormat::ACN_SN3D);
+            assert!(
+                check.duplicate_channels.is_empty(),
+                "order {order} {storage:?}: {:?}",
+                check.duplicate_channels
+            );
+        }
+    }
+}
+
+#[test]
+fn copies_beside_a_plane_wave_in_the_higher_orders_are_still_found() {
+    for storage in DITHERED {
+        // Z copied onto X in the first-order part.
+        let mut scene = first_order_under_higher_order(3, -20.0, 7500);
+        scene.channels[3] = scene.channels[2].clone();
+        let check = scene.stored(storage, 7500).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(2, 3)], "{storage:?}");
+        // ACN 8 copied onto ACN 4 inside the block: the copy correlates with every channel
+        // of the block; the block is a plane wave again without ACN 4, so only the copy is
+        // named.
+        let mut scene = first_order_under_higher_order(3, -20.0, 7501);
+        scene.channels[4] = scene.channels[8].clone();
+        let check = scene.stored(storage, 7501).check(AmbiFormat::ACN_SN3D);
+        assert_eq!(check.duplicate_channels, vec![(4, 8)], "{storage:?}");
+    }
+}
+
+#[test]
+fn cost_of_geometric_ties_printout() {
+    // Speed figures, not assertions: `-- --nocapture cost_of_geometric_ties`. Order 7, each
+    // scene that reaches the models (the check runs at 2 Hz).
+    use fieldglass_dsp::format_check::FormatChecker;
+    let order = 7;
+    let scenes = [
+        (
+            "source jumping sides",
+            jumping_source(
+                order,
+                AmbiFormat::ACN_SN3D,
+                Direction::new(80.0, 10.0),
+                -20.0,
+                91,
+            ),
+        ),
+        (
+            "panned at 20°",
+            panned_source(order, AmbiFormat::ACN_SN3D, 20.0, -20.0, 92),
+        ),
+        (
+            "raised at 25°",
+            raised_source(order, AmbiFormat::ACN_SN3D, 25.0, -20.0, 96),
+        ),
+        (
+            "first order under a plane wave",
+            first_order_under_higher_order(order, -20.0, 93),
+        ),
+        ("first order under a plane wave, ACN 40 copied onto 30", {
+            // The slow path: the block search that names the copy.
+            let mut scene = first_order_under_higher_order(order, -20.0, 95);
+            scene.channels[30] = scene.channels[40].clone();
+            scene
+        }),
+    ];
+    let mut checker = FormatChecker::new(order).unwrap();
+    for (name, scene) in scenes {
+        let scene = scene.stored(Storage::Pcm(16, true), 94);
+        let covariance = covariance(&scene.channels);
+        let m = scene.channels.len();
+        let mean_square: Vec<f64> = (0..m).map(|i| covariance[i * m + i]).collect();
+        let input = FormatCheckInput {
+            raw_covariance: &covariance,
+            order,
+            assumed: AmbiFormat::ACN_SN3D,
+            channel_mean_square: &mean_square,
+            frames_seen: FRAMES as u64,
+            absent_channels: &[],
+            mid_band_covariance: None,
+        };
+        let raw_pairs = {
+            let mut count = 0;
+            for i in 0..m {
+                for j in i + 1..m {
+                    let r = covariance[i * m + j]
+                        / (covariance[i * m + i] * covariance[j * m + j]).sqrt();
+                    count += usize::from(r.abs() > 0.9999);
+                }
+            }
+            count
+        };
+        let runs = 5;
+        let started = std::time::Instant::now();
+        let mut last = None;
+        for _ in 0..runs {
+            last = Some(std::hint::black_box(checker.check(&input).unwrap()));
+        }
+        println!(
+            "format check order {order}, {name}: {:.2} ms each; correlated pairs {raw_pairs}, \
+             reported {:?}",
             started.elapsed().as_secs_f64() * 1e3 / runs as f64,
             last.unwrap().duplicate_channels
         );

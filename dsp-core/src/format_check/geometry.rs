@@ -39,6 +39,8 @@ pub(crate) struct Geometry {
     /// Some(K): the covariance has K ≤ [`MAX_PLANE_WAVES`] strong eigenvalues over such a
     /// floor, whether or not they fit plane waves.
     pub low_rank: Option<usize>,
+    /// Unit vectors [x, y, z] of the plane waves found, the first `plane_waves` entries.
+    pub directions: [[f64; 3]; MAX_PLANE_WAVES],
 }
 
 /// What [`analyse`] looks at.
@@ -135,6 +137,7 @@ pub(crate) fn analyse(search: &mut SteeringFitSearch, query: &GeometryQuery) -> 
         let next = if k < size { value(k).max(0.0) } else { 0.0 };
         next <= PLANE_WAVE_EIGEN_GAP * value(k - 1)
     });
+    let mut directions = [[0.0; 3]; MAX_PLANE_WAVES];
     let plane_waves = low_rank.filter(|&k| {
         let next = if k < size { value(k).max(0.0) } else { 0.0 };
         let tolerance = PLANE_WAVE_FIT_TOLERANCE.max((size - k) as f64 * next / value(k - 1));
@@ -158,6 +161,7 @@ pub(crate) fn analyse(search: &mut SteeringFitSearch, query: &GeometryQuery) -> 
             }
             found.push(at);
         }
+        directions[..k].copy_from_slice(&found);
         true
     });
     Geometry {
@@ -165,5 +169,6 @@ pub(crate) fn analyse(search: &mut SteeringFitSearch, query: &GeometryQuery) -> 
         directional_share,
         plane_waves,
         low_rank,
+        directions,
     }
 }

@@ -41,6 +41,16 @@
 //!   with it. When the strong components do not fit plane waves, the channel whose removal
 //!   makes them fit is named (with its same-level copy partner) rather than every
 //!   correlated pair.
+//! - **Other scene families** ([`geometric_ties`]): a pair is proportional by geometry when
+//!   every source lies on a level curve of the two harmonics' ratio. Four ordinary families
+//!   are tested as predictions about the converted covariance, under the readings at least
+//!   [`PLAUSIBLE_FOR_GEOMETRY`] probable: all
+//!   sources on one axis (a source jumping to the opposite side), all at one elevation (pan
+//!   automation at a fixed height; the horizontal plane is its e = 0 case), all at one
+//!   azimuth (a source moved up and down), and one to three plane waves present only in the
+//!   top orders (a lower-order recording under a higher-order panned source). A pair is
+//!   excused only when its family holds and its own ratio is the predicted one; a channel
+//!   copied into such content is named with its copy partner.
 //!
 //! Known-absent channels (`absent_channels`, e.g. the components a mixed-order FuMa file
 //! does not carry) are never silent or duplicate; they are left out of the eigen-analysis
@@ -52,6 +62,7 @@
 
 pub mod a_format;
 mod channel_health;
+pub mod geometric_ties;
 pub mod geometry;
 pub mod horizontal;
 mod steering_fit;
@@ -61,6 +72,7 @@ pub use channel_health::{DUPLICATE_CORRELATION, SILENT_MEAN_SQUARE};
 use crate::engine::snapshot::{FormatCheck, HypothesisScore};
 use crate::format::{AmbiFormat, ConversionPlan};
 use crate::sh::{MAX_SH_ORDER, channel_count};
+use geometric_ties::{GeometricTies, TieQuery};
 use geometry::{Geometry, GeometryQuery};
 use horizontal::{HorizontalIdentities, HorizontalQuery, HorizontalReading};
 use std::fmt;
@@ -102,6 +114,13 @@ pub mod score_constants {
     /// 0.68 s at 48 kHz, i.e. ~64 half-overlapped STFT frames, enough for the per-order
     /// energies to settle within ~0.5 dB on noise-like content.
     pub const MIN_FRAMES_FOR_VERDICT: u64 = 32_768;
+    /// The scene families of [`geometric_ties`](super::geometric_ties) are tried only under
+    /// readings at least this probable: a family can fit a misread stream by accident (a
+    /// horizontal scene read as FuMa with a copied channel looks like a source moved up and
+    /// down), and a copy excused under a reading the data rule out would be hidden for
+    /// nothing. The level is our own choice: 1 % is well below any reading the check
+    /// would report, far above the 1e-10 of readings the data rule out.
+    pub const PLAUSIBLE_FOR_GEOMETRY: f64 = 0.01;
 }
 
 use score_constants::*;
@@ -201,6 +220,7 @@ pub struct FormatChecker {
     hypotheses: Vec<Hypothesis>,
     search: SteeringFitSearch,
     identities: HorizontalIdentities,
+    ties: GeometricTies,
     /// Converted covariance, (order+1)² squared, row-major, indexed by \[acn\]\[acn\].
     converted: Vec<f64>,
 }
@@ -266,6 +286,7 @@ impl FormatChecker {
             hypotheses,
             search: SteeringFitSearch::new(order),
             identities: HorizontalIdentities::new(order),
+            ties: GeometricTies::new(order),
             converted: vec![0.0; channels * channels],
         })
     }
@@ -419,9 +440,26 @@ impl FormatChecker {
             result.confidence = best.probability;
         }
 
-        let culprits = self.copied_into_plane_waves(&evidence, input, &excluded, effective_order);
         self.apply_geometry(&mut result, &evidence, assumed_index, input, &excluded);
-        if let Some(culprits) = culprits {
+        let plausible: Vec<bool> = result
+            .hypotheses
+            .iter()
+            .map(|h| h.probability >= PLAUSIBLE_FOR_GEOMETRY)
+            .collect();
+        let named = self.explain_by_geometric_ties(
+            &mut result.duplicate_channels,
+            &facts,
+            input,
+            effective_order,
+            &plausible,
+        );
+        // The masked search costs one eigen-analysis per channel and hypothesis: only when
+        // some correlated pair is left to name and no copy has been named yet.
+        if !named
+            && !result.duplicate_channels.is_empty()
+            && let Some(culprits) =
+                self.copied_into_plane_waves(&evidence, input, &excluded, effective_order)
+        {
             restrict_to_culprits(&mut result.duplicate_channels, &culprits, input, channels);
         }
 
@@ -508,6 +546,62 @@ impl FormatChecker {
             pairs.clear();
         }
         result.duplicate_channels = pairs;
+    }
+
+    /// Drops the correlated pairs that a scene family of [`geometric_ties`] explains under
+    /// some `plausible` hypothesis (flags indexed like the hypotheses). True when a channel
+    /// copied into otherwise explained content was named (its pairs are then cut to its copy
+    /// partners).
+    fn explain_by_geometric_ties(
+        &mut self,
+        pairs: &mut Vec<(usize, usize)>,
+        facts: &ChannelFacts,
+        input: &FormatCheckInput,
+        effective_order: usize,
+        plausible: &[bool],
+    ) -> bool {
+        if pairs.is_empty() {
+            return false;
+        }
+        let mut explained = vec![false; pairs.len()];
+        let mut culprits = Vec::new();
+        for index in (0..self.hypotheses.len()).filter(|&i| plausible[i]) {
+            self.convert(index, input.raw_covariance);
+            let plan = &self.hypotheses[index].plan;
+            let mut acn_of_input = vec![0; plan.channels()];
+            for a in 0..plan.channels() {
+                acn_of_input[plan.source_channel(a)] = a;
+            }
+            let acn_pairs: Vec<(usize, usize)> = pairs
+                .iter()
+                .map(|&(i, j)| (acn_of_input[i], acn_of_input[j]))
+                .collect();
+            let present = facts.present(plan);
+            let live = facts.live(plan);
+            let culprit = self.ties.explain(
+                &mut self.search,
+                &TieQuery {
+                    covariance: &self.converted,
+                    plan,
+                    present: &present,
+                    live: &live,
+                    effective_order,
+                },
+                &acn_pairs,
+                &mut explained,
+            );
+            culprits.extend(culprit.map(|a| plan.source_channel(a)));
+            if explained.iter().all(|&e| e) {
+                break;
+            }
+        }
+        let mut flags = explained.into_iter();
+        pairs.retain(|_| !flags.next().unwrap_or(false));
+        let channels = channel_count(self.order);
+        for &culprit in &culprits {
+            keep_copy_partners(pairs, culprit, input, channels);
+        }
+        !culprits.is_empty()
     }
 
     /// When the covariance is a few strong components that do *not* fit plane waves under
@@ -648,6 +742,23 @@ fn restrict_to_culprits(
         .collect();
     if !copies.is_empty() {
         *pairs = copies;
+    }
+}
+
+/// Of the pairs that involve `culprit`, keeps only its same-level partners (the channel it
+/// is a copy of) when it has any; other pairs are left alone.
+fn keep_copy_partners(
+    pairs: &mut Vec<(usize, usize)>,
+    culprit: usize,
+    input: &FormatCheckInput,
+    channels: usize,
+) {
+    let power = |c: usize| input.raw_covariance[c * channels + c];
+    let same_level =
+        |a: usize, b: usize| (power(a) - power(b)).abs() <= 1e-3 * power(a).max(power(b));
+    let involves = |&(i, j): &(usize, usize)| i == culprit || j == culprit;
+    if pairs.iter().any(|&p| involves(&p) && same_level(p.0, p.1)) {
+        pairs.retain(|&p| !involves(&p) || same_level(p.0, p.1));
     }
 }
 
