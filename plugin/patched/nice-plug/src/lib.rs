@@ -82,6 +82,11 @@
 //! There's a whole lot more to discuss, but once you understand the above you should be able to
 //! figure out the rest by reading through the examples and the API documentation. Good luck!
 
+// FIELDGLASS PATCH: a path dependency's warnings are not capped the way a registry crate's are;
+// silence the two that the published code raises in release builds (state.rs, variables used
+// only by debug assertions) so that `cargo run --release` stays quiet.
+#![allow(unused_variables)]
+
 pub use nice_plug_core::*;
 
 /// Everything you'll need to use nice-plug. Import this with `use nice_plug::prelude::*;`.
