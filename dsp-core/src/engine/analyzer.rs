@@ -16,7 +16,10 @@ use crate::covariance::{BAND_COUNT, BandCovariance};
 use crate::format::{ConversionPlan, FormatError};
 use crate::format_check::{FormatCheckInput, FormatChecker};
 use crate::loudness::LoudnessMeter;
-use crate::meters::{ChannelMeterConfig, ChannelMeters, FullScale, LEVEL_FLOOR_DB};
+use crate::meters::{
+    ChannelMeterConfig, ChannelMeters, FullScale, LEVEL_FLOOR_DB, ProgrammeTotals,
+    mean_square_to_db,
+};
 use crate::sh::order_degree;
 use crate::sphere::Direction;
 use crate::sphere::grid::EquirectGrid;
@@ -452,29 +455,22 @@ impl Analyzer {
     }
 
     fn update_channels(&mut self) {
-        let m = self.layout.spatial_channels;
         let tolerance = self.settings.over_omni_tolerance_db;
-        // Empty by the scene's geometry or absent from the file: not silent channels.
-        let explained = |c: usize| {
-            self.absent_channels.contains(&c)
-                || self.snapshot.format_check.silent_by_geometry.contains(&c)
-        };
-        let explained: [bool; 64] = std::array::from_fn(explained);
+        let explained: Vec<bool> = (0..self.setup.channels)
+            .map(|c| self.emptiness_explained(c))
+            .collect();
+        let acn_of: Vec<Option<usize>> = (0..self.setup.channels)
+            .map(|c| self.acn_of_input(c))
+            .collect();
         let status = &mut self.snapshot.channel_status;
         status.resize(self.setup.channels, ChannelStatus::default());
         // SN3D level of a file channel = its raw level + 20·log10|gain of the ACN it carries|.
-        let mut acn_of_input = [usize::MAX; 64];
-        for acn in 0..m {
-            acn_of_input[self.conversion.source_channel(acn)] = acn;
-        }
         let w_input = self.conversion.source_channel(0);
         let w_level = self.meters.rms_dbfs(w_input).unwrap_or(LEVEL_FLOOR_DB)
             + 20.0 * self.conversion.gain(0).abs().log10();
         for (c, st) in status.iter_mut().enumerate() {
             let reading = self.meters.reading(c).unwrap_or_default();
-            let acn = (c < m)
-                .then(|| acn_of_input[c])
-                .filter(|&a| a != usize::MAX);
+            let acn = acn_of[c];
             let sn3d_level = match acn {
                 Some(a) => {
                     reading.rms_dbfs + 20.0 * self.conversion.gain(a).abs().max(1e-30).log10()
@@ -493,7 +489,7 @@ impl Analyzer {
                 reading,
                 sn3d_level_dbfs: sn3d_level,
                 over_omni: over,
-                silent: reading.rms_dbfs < -120.0 && !explained.get(c).copied().unwrap_or(false),
+                silent: reading.rms_dbfs < -120.0 && !explained[c],
             };
         }
         // Omni: W's raw meters, shifted by its conversion gain.
@@ -542,60 +538,52 @@ impl Analyzer {
     /// The whole-programme summary as of now (see [`ProgrammeSummary`]); the format check in
     /// it is the latest one.
     pub fn programme_summary(&self) -> ProgrammeSummary {
-        let m = self.layout.spatial_channels;
         let tolerance = self.settings.over_omni_tolerance_db;
-        let mean_square = self.programme_mean_square();
-        let mut acn_of_input = [usize::MAX; 64];
-        for acn in 0..m {
-            acn_of_input[self.conversion.source_channel(acn)] = acn;
-        }
-        let acn_of = |c: usize| {
-            (c < m)
-                .then(|| acn_of_input[c])
-                .filter(|&a| a != usize::MAX)
-        };
-        let sn3d_mean_square = |c: usize| match acn_of(c) {
-            Some(a) => mean_square[c] * self.conversion.gain(a).powi(2),
-            None => mean_square[c],
+        let totals: Vec<ProgrammeTotals> = (0..self.setup.channels)
+            .map(|c| self.meters.programme(c).unwrap_or_default())
+            .collect();
+        let sn3d_mean_square = |c: usize| {
+            let gain = self
+                .acn_of_input(c)
+                .map_or(1.0, |a| self.conversion.gain(a));
+            totals[c].mean_square() * gain * gain
         };
         let w_input = self.conversion.source_channel(0);
-        let w_sn3d = sn3d_mean_square(w_input);
-        let w_active = w_sn3d >= SILENT_MEAN_SQUARE;
+        let w_sn3d_db = mean_square_to_db(sn3d_mean_square(w_input));
+        let w_active = sn3d_mean_square(w_input) >= SILENT_MEAN_SQUARE;
         let check = &self.snapshot.format_check;
         let channels: Vec<ChannelProgramme> = (0..self.setup.channels)
             .map(|c| {
-                let totals = self.meters.programme(c).unwrap_or_default();
-                let acn = acn_of(c);
-                let sn3d = sn3d_mean_square(c);
+                let t = &totals[c];
+                let acn = self.acn_of_input(c);
+                let sn3d_db = mean_square_to_db(sn3d_mean_square(c));
                 ChannelProgramme {
                     input_index: c,
                     acn,
                     order: acn.map(|a| order_degree(a).0),
                     degree: acn.map(|a| order_degree(a).1),
-                    sample_peak_dbfs: totals.sample_peak_dbfs(),
-                    true_peak_dbtp: totals.true_peak_dbtp(),
-                    rms_dbfs: mean_square_db(mean_square[c]),
-                    sn3d_rms_dbfs: mean_square_db(sn3d),
-                    clip_count: totals.clip_count,
-                    longest_clip_run: totals.longest_clip_run,
-                    invalid_samples: totals.invalid_samples,
-                    dc_offset: totals.mean(),
+                    sample_peak_dbfs: t.sample_peak_dbfs(),
+                    true_peak_dbtp: t.true_peak_dbtp(),
+                    rms_dbfs: t.rms_dbfs(),
+                    sn3d_rms_dbfs: sn3d_db,
+                    clip_count: t.clip_count,
+                    longest_clip_run: t.longest_clip_run,
+                    invalid_samples: t.invalid_samples,
+                    dc_offset: t.mean(),
                     over_omni: acn.is_some_and(|a| a != 0)
                         && w_active
-                        && mean_square_db(sn3d) > mean_square_db(w_sn3d) + tolerance,
-                    silent: mean_square[c] < SILENT_MEAN_SQUARE
-                        && !self.absent_channels.contains(&c)
-                        && !check.silent_by_geometry.contains(&c),
+                        && sn3d_db > w_sn3d_db + tolerance,
+                    silent: t.mean_square() < SILENT_MEAN_SQUARE && !self.emptiness_explained(c),
                 }
             })
             .collect();
         let w_gain_db = 20.0 * self.conversion.gain(0).abs().log10();
-        let w = self.meters.programme(w_input).unwrap_or_default();
+        let w = &totals[w_input];
         let omni = OmniProgramme {
             conversion_gain_db: w_gain_db,
             sample_peak_dbfs: w.sample_peak_dbfs() + w_gain_db,
             true_peak_dbtp: w.true_peak_dbtp() + w_gain_db,
-            rms_dbfs: mean_square_db(w_sn3d),
+            rms_dbfs: w_sn3d_db,
             integrated_lufs: self.loudness.integrated_lufs(),
             max_momentary_lufs: self.loudness.max_momentary_lufs(),
             max_short_term_lufs: self.loudness.max_short_term_lufs(),
@@ -662,11 +650,21 @@ impl Analyzer {
     /// Mean square of the valid samples of every input channel over the whole programme.
     pub fn programme_mean_square(&self) -> Vec<f64> {
         (0..self.setup.channels)
-            .map(|c| {
-                let t = self.meters.programme(c).unwrap_or_default();
-                t.sum_squares / t.valid_samples.max(1) as f64
-            })
+            .map(|c| self.meters.programme(c).unwrap_or_default().mean_square())
             .collect()
+    }
+
+    /// The ACN index input channel `c` carries under the assumed format; `None` for an extra
+    /// (non-spatial) channel.
+    fn acn_of_input(&self, c: usize) -> Option<usize> {
+        (0..self.layout.spatial_channels).find(|&acn| self.conversion.source_channel(acn) == c)
+    }
+
+    /// Channel `c` is empty for a known reason, so it is not a silent channel: absent from a
+    /// mixed-order file, or empty by the scene's geometry (a horizontal-only scene).
+    fn emptiness_explained(&self, c: usize) -> bool {
+        self.absent_channels.contains(&c)
+            || self.snapshot.format_check.silent_by_geometry.contains(&c)
     }
 
     /// Reads integer PCM of `bits` bits (or float): decides what counts as a sample at full
@@ -716,14 +714,6 @@ impl Analyzer {
             intensity.diffuseness = self.diffuseness.mean(band.index());
         }
         intensity
-    }
-}
-
-fn mean_square_db(mean_square: f64) -> f64 {
-    if mean_square > 0.0 {
-        (10.0 * mean_square.log10()).max(LEVEL_FLOOR_DB)
-    } else {
-        LEVEL_FLOOR_DB
     }
 }
 

@@ -193,13 +193,18 @@ impl ProgrammeTotals {
         }
     }
 
+    /// Mean square of the valid samples, 0 without valid samples.
+    pub fn mean_square(&self) -> f64 {
+        if self.valid_samples == 0 {
+            0.0
+        } else {
+            self.sum_squares / self.valid_samples as f64
+        }
+    }
+
     /// RMS level of the valid samples in dBFS (floored at [`LEVEL_FLOOR_DB`]).
     pub fn rms_dbfs(&self) -> f64 {
-        if self.valid_samples == 0 {
-            LEVEL_FLOOR_DB
-        } else {
-            mean_square_to_db(self.sum_squares / self.valid_samples as f64)
-        }
+        mean_square_to_db(self.mean_square())
     }
 
     /// `max_sample_peak` in dBFS (floored).
