@@ -7,7 +7,7 @@
 //! maps, sources, DirAC, format check and findings.
 
 use super::control::AnalysisSettings;
-use super::diffuseness::{DiffusenessTracker, FirstOrderMoments};
+use super::diffuseness::{DiffusenessTracker, FirstOrderMoments, energy_and_diffuseness};
 use super::findings::{collect_findings, order_deficit};
 use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
@@ -723,7 +723,7 @@ fn first_order_moments(raw: &[f64], m: usize, conversion: &ConversionPlan) -> Fi
         let (sa, sb) = (conversion.source_channel(a), conversion.source_channel(b));
         conversion.gain(a) * conversion.gain(b) * raw[sa * m + sb]
     };
-    // ACN 3, 1, 2 are X, Y, Z.
+    // ACN 3, 1, 2 are X, Y, Z; the order of FirstOrderMoments.
     [
         entry(0, 0),
         entry(3, 3),
@@ -760,13 +760,24 @@ pub fn dirac(r_sn3d: &[f64], m: usize) -> BandIntensity {
             w_level_dbfs,
         };
     }
-    let intensity = [r_sn3d[3], r_sn3d[1], r_sn3d[2]];
-    let energy = w2 + r_sn3d[m + 1] + r_sn3d[2 * m + 2] + r_sn3d[3 * m + 3];
-    let norm = (intensity[0].powi(2) + intensity[1].powi(2) + intensity[2].powi(2)).sqrt();
-    let diffuseness = (1.0 - 2.0 * norm / energy).clamp(0.0, 1.0);
+    // ACN 3, 1, 2 are X, Y, Z.
+    let entry = |a: usize, b: usize| r_sn3d[a * m + b];
+    let moments = [
+        w2,
+        entry(3, 3),
+        entry(1, 1),
+        entry(2, 2),
+        entry(0, 3),
+        entry(0, 1),
+        entry(0, 2),
+    ];
+    let intensity = [moments[4], moments[5], moments[6]];
     BandIntensity {
-        direction: (norm > 0.0).then(|| Direction::from_cartesian(intensity)),
-        diffuseness: Some(diffuseness),
+        direction: intensity
+            .iter()
+            .any(|&v| v != 0.0)
+            .then(|| Direction::from_cartesian(intensity)),
+        diffuseness: energy_and_diffuseness(&moments).map(|(_, psi)| psi),
         w_level_dbfs,
     }
 }

@@ -19,6 +19,18 @@ pub const SHORT_TIME_CONSTANT_S: f64 = 0.1;
 /// ⟨W·Z⟩ (the active intensity up to a constant).
 pub type FirstOrderMoments = [f64; 7];
 
+/// DirAC energy E = W² + X² + Y² + Z² (SN3D) and diffuseness ψ = 1 − 2‖I‖/E of `moments`
+/// (Pulkki 2007), or `None` without energy.
+pub fn energy_and_diffuseness(moments: &FirstOrderMoments) -> Option<(f64, f64)> {
+    let energy = moments[0] + moments[1] + moments[2] + moments[3];
+    if !(energy.is_finite() && energy > 0.0) {
+        return None;
+    }
+    let [.., ix, iy, iz] = *moments;
+    let intensity = (ix * ix + iy * iy + iz * iz).sqrt();
+    Some((energy, (1.0 - 2.0 * intensity / energy).clamp(0.0, 1.0)))
+}
+
 /// Energy-weighted mean of short-time diffuseness, per band.
 #[derive(Clone, Debug)]
 pub struct DiffusenessTracker {
@@ -45,12 +57,9 @@ impl DiffusenessTracker {
         for (v, &f) in s.iter_mut().zip(frame) {
             *v = self.alpha * *v + (1.0 - self.alpha) * f;
         }
-        let energy = s[0] + s[1] + s[2] + s[3];
-        if !(energy.is_finite() && energy > 0.0) {
+        let Some((energy, psi)) = energy_and_diffuseness(s) else {
             return;
-        }
-        let intensity = (s[4] * s[4] + s[5] * s[5] + s[6] * s[6]).sqrt();
-        let psi = (1.0 - 2.0 * intensity / energy).clamp(0.0, 1.0);
+        };
         self.weighted_psi[band] += energy * psi;
         self.energy[band] += energy;
     }
