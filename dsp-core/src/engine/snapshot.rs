@@ -386,6 +386,13 @@ impl OmniProgramme {
     }
 }
 
+impl OmniReading {
+    /// A level in the stream's own W scale, from its SN3D-equivalent value.
+    pub fn as_stored(&self, sn3d_value: f64) -> f64 {
+        sn3d_value - self.conversion_gain_db
+    }
+}
+
 /// Whole-programme summary: what the scanner reports and the whole-session view shows.
 /// Computed in one place, [`Analyzer::programme_summary`](super::Analyzer::programme_summary).
 #[derive(Clone, Debug, PartialEq, Default)]

@@ -76,13 +76,14 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
                 "Integrated",
                 lufs_text(omni.integrated_lufs).into(),
                 None,
-            ); // Where the stream's W is scaled (FuMa, maxN), the readings above are its
+            );
+            // Where the stream's W is scaled (FuMa, maxN), the readings above are its
             // SN3D equivalent; show the stream's own W beside them.
             if omni.conversion_gain_db.abs() > 0.005 {
                 row(
                     ui,
                     "W as stored",
-                    format!("{} dBTP", db(omni.true_peak_dbtp - omni.conversion_gain_db)).into(),
+                    format!("{} dBTP", db(omni.as_stored(omni.true_peak_dbtp))).into(),
                     Some(format!(
                         "levels above are SN3D, {:+.2} dB",
                         omni.conversion_gain_db

@@ -325,7 +325,7 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             ordering: detected.map(|f| ordering_label(f.ordering)),
             normalization: detected.map(|f| normalization_label(f.normalization)),
             order: result.layout.order,
-            effective_order: result.effective_order,
+            effective_order: result.effective_order(),
             confidence: detected.and_then(|_| rounded(num(check.confidence), 4)),
             hypotheses,
         },
@@ -334,7 +334,7 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             band_edges_hz: [num(snap.band_edges_hz[0]), num(snap.band_edges_hz[1])],
             over_omni_tolerance_db: num(result.options.over_omni_tolerance_db),
         },
-        order_balance_db: balance(&result.order_balance_db),
+        order_balance_db: balance(result.order_balance_db()),
         channels: result.channels.iter().filter_map(spatial).collect(),
         extra_channels: result
             .channels

@@ -264,7 +264,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         &format!(
             "read as {}; effective order {}",
             escape(result.options.assumed.human_name()),
-            result.effective_order
+            result.effective_order()
         ),
     );
     card(
@@ -392,7 +392,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     let img = picture(
         dir,
         ORDER_BALANCE_FILE,
-        order_balance_chart(&result.order_balance_db, result.options.assumed).to_png(),
+        order_balance_chart(result.order_balance_db(), result.options.assumed).to_png(),
         "order balance",
     )?;
     let _ = writeln!(h, "<figure>{img}</figure>");
@@ -406,7 +406,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     h.push_str("<table><tr><th>Order</th><th>Measured dB</th><th>SN3D expects</th><th>N3D expects</th><th>FuMa expects</th></tr>\n");
     #[allow(clippy::needless_range_loop)] // n indexes the order and three tables at once
     for n in 1..=order {
-        let measured = result.order_balance_db.get(n).copied();
+        let measured = result.order_balance_db().get(n).copied();
         let _ = writeln!(
             h,
             "<tr><td>{n}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",

@@ -172,16 +172,14 @@ pub struct ScanResult {
     pub options: ScanOptions,
     /// The engine's snapshot at the end of the file (W loudness, format check).
     pub snapshot: Snapshot,
-    /// Per input channel, in file order (spatial first, then extra channels).
+    /// Per file channel, in file order (spatial first, then extra channels): the engine's
+    /// programme figures, renumbered to file channels for a mixed-order set.
     pub channels: Vec<ChannelSummary>,
-    /// Energy per order relative to W under the assumed format, dB, indexed [order].
-    pub order_balance_db: Vec<f64>,
-    /// Highest order that carries energy.
-    pub effective_order: usize,
     /// Full, low, mid, high.
     pub bands: Vec<BandResult>,
     pub timeline: Vec<TimelinePoint>,
-    /// Whole-file findings, most severe first.
+    /// Whole-file findings, most severe first: the engine's, naming file channels, plus what
+    /// the reader had to repair.
     pub findings: Vec<Finding>,
     /// Wall-clock time of the analysis, seconds.
     pub analysis_s: f64,
@@ -190,6 +188,16 @@ pub struct ScanResult {
 impl ScanResult {
     pub fn band(&self, band: Band) -> Option<&BandResult> {
         self.bands.iter().find(|b| b.band == band)
+    }
+
+    /// Full-band energy per order relative to W under the assumed format, dB, indexed [order].
+    pub fn order_balance_db(&self) -> &[f64] {
+        &self.snapshot.programme.order_balance_db
+    }
+
+    /// Highest order that carries energy.
+    pub fn effective_order(&self) -> usize {
+        self.snapshot.programme.effective_order
     }
 }
 
@@ -441,8 +449,6 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     let snapshot = analyzer.finish().clone();
     let programme = &snapshot.programme;
     let mut channels = programme.channels.clone();
-    let order_balance_db = programme.order_balance_db.clone();
-    let effective_order = programme.effective_order;
     let mut findings = programme.findings.clone();
     if let Some(e) = &expander {
         to_file_channels(e, &mut channels, &mut findings);
@@ -499,8 +505,6 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
         options,
         snapshot,
         channels,
-        order_balance_db,
-        effective_order,
         bands,
         timeline,
         findings,

@@ -45,7 +45,8 @@ pub fn format_verdict(result: &ScanResult) -> String {
     let _ = write!(
         line,
         "; order {}, effective order {}",
-        result.layout.order, result.effective_order
+        result.layout.order,
+        result.effective_order()
     );
     line
 }
