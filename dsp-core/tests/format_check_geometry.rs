@@ -27,7 +27,7 @@
 
 use fieldglass_dsp::encoder::PlaneWaveEncoder;
 use fieldglass_dsp::engine::AnalysisSettings;
-use fieldglass_dsp::engine::findings::collect_findings;
+use fieldglass_dsp::engine::findings::live_findings;
 use fieldglass_dsp::engine::snapshot::{FindingCode, FormatCheck, Severity, Snapshot};
 use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::format_check::a_format::TETRAHEDRAL_A_TO_B_SN3D;
@@ -211,7 +211,7 @@ fn findings(
         format_check: check.clone(),
         ..Snapshot::default()
     };
-    collect_findings(&snapshot, &AnalysisSettings::default())
+    live_findings(&snapshot, &AnalysisSettings::default())
         .into_iter()
         .map(|f| (f.severity, f.code))
         .collect()

@@ -8,7 +8,7 @@
 
 use super::control::AnalysisSettings;
 use super::diffuseness::{DiffusenessTracker, FirstOrderMoments, energy_and_diffuseness};
-use super::findings::{collect_findings, order_deficit};
+use super::findings::{ChannelFacts, FindingInputs, collect_findings, live_findings};
 use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
 use super::snapshot::*;
@@ -451,7 +451,7 @@ impl Analyzer {
         snap.format_not_applied.clone_from(&self.format_not_applied);
         snap.band_edges_hz = self.covariance.layout().edges_hz();
         snap.frozen = self.settings.hold;
-        snap.findings = collect_findings(snap, &self.settings);
+        snap.findings = live_findings(snap, &self.settings);
     }
 
     fn update_channels(&mut self) {
@@ -604,47 +604,17 @@ impl Analyzer {
 
     /// The engine's finding rules applied to whole-programme figures.
     fn programme_findings(&self, summary: &ProgrammeSummary) -> Vec<Finding> {
-        let channel_status = summary
-            .channels
-            .iter()
-            .map(|c| {
-                let mut reading = self.meters.reading(c.input_index).unwrap_or_default();
-                reading.clip_count = c.clip_count;
-                reading.longest_clip_run = c.longest_clip_run;
-                reading.invalid_sample_count = c.invalid_samples;
-                reading.dc_offset = c.dc_offset;
-                reading.over_omni = c.over_omni;
-                reading.rms_dbfs = c.rms_dbfs;
-                ChannelStatus {
-                    input_index: c.input_index,
-                    acn: c.acn,
-                    order: c.order,
-                    degree: c.degree,
-                    reading,
-                    sn3d_level_dbfs: c.sn3d_rms_dbfs,
-                    over_omni: c.over_omni,
-                    silent: c.silent,
-                }
-            })
-            .collect();
-        let view = Snapshot {
-            order: self.layout.order,
-            channels: self.setup.channels,
-            assumed_format: self.settings.assumed_format,
-            channel_status,
-            format_check: summary.format_check.clone(),
-            ..Snapshot::default()
-        };
-        let mut findings = collect_findings(&view, &self.settings);
-        // Live, an order deficit waits for a format verdict (so that it does not flicker at the
-        // start); over a programme too short for a verdict the measured balance still holds.
-        let check = &summary.format_check;
-        let w_heard = check.order_balance_db.len() == self.layout.order + 1;
-        if !check.ready && w_heard && summary.effective_order < self.layout.order {
-            findings.push(order_deficit(self.layout.order, summary.effective_order));
-        }
-        findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
-        findings
+        let channels: Vec<ChannelFacts> = summary.channels.iter().map(Into::into).collect();
+        collect_findings(
+            &FindingInputs {
+                channels: &channels,
+                format_check: &summary.format_check,
+                order: self.layout.order,
+                assumed_format: self.settings.assumed_format,
+                whole_programme: true,
+            },
+            &self.settings,
+        )
     }
 
     /// Mean square of the valid samples of every input channel over the whole programme.

@@ -1,7 +1,10 @@
 //! Findings: plain-words statements a reviewer should see, with stable codes.
 
 use super::control::AnalysisSettings;
-use super::snapshot::{Finding, FindingCode, Severity, Snapshot};
+use super::snapshot::{
+    ChannelProgramme, ChannelStatus, Finding, FindingCode, FormatCheck, Severity, Snapshot,
+};
+use crate::format::AmbiFormat;
 
 /// |DC| above this (−50 dBFS) over the meter window is reported.
 pub const DC_OFFSET_LIMIT: f64 = 0.003_162;
@@ -25,11 +28,77 @@ pub fn order_deficit(order: usize, effective: usize) -> Finding {
     }
 }
 
+/// What the finding rules need to know of one channel, live or over the whole programme.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct ChannelFacts {
+    pub input_index: usize,
+    pub invalid_samples: u64,
+    pub clip_count: u64,
+    pub longest_clip_run: u64,
+    pub over_omni: bool,
+    pub dc_offset: f64,
+}
+
+impl From<&ChannelStatus> for ChannelFacts {
+    fn from(s: &ChannelStatus) -> Self {
+        Self {
+            input_index: s.input_index,
+            invalid_samples: s.reading.invalid_sample_count,
+            clip_count: s.reading.clip_count,
+            longest_clip_run: s.reading.longest_clip_run,
+            over_omni: s.over_omni,
+            dc_offset: s.reading.dc_offset,
+        }
+    }
+}
+
+impl From<&ChannelProgramme> for ChannelFacts {
+    fn from(c: &ChannelProgramme) -> Self {
+        Self {
+            input_index: c.input_index,
+            invalid_samples: c.invalid_samples,
+            clip_count: c.clip_count,
+            longest_clip_run: c.longest_clip_run,
+            over_omni: c.over_omni,
+            dc_offset: c.dc_offset,
+        }
+    }
+}
+
+/// Everything the finding rules look at.
+#[derive(Clone, Copy, Debug)]
+pub struct FindingInputs<'a> {
+    pub channels: &'a [ChannelFacts],
+    pub format_check: &'a FormatCheck,
+    /// Ambisonic order of the stream.
+    pub order: usize,
+    pub assumed_format: AmbiFormat,
+    /// Judging a whole programme rather than the live state: an order deficit is then reported
+    /// from the measured balance even where the programme was too short for a format verdict
+    /// (live, it waits for the verdict so that it does not flicker at the start).
+    pub whole_programme: bool,
+}
+
 /// Findings for the live state in `snapshot` (meters, format check).
-pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec<Finding> {
+pub fn live_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec<Finding> {
+    let channels: Vec<ChannelFacts> = snapshot.channel_status.iter().map(Into::into).collect();
+    collect_findings(
+        &FindingInputs {
+            channels: &channels,
+            format_check: &snapshot.format_check,
+            order: snapshot.order,
+            assumed_format: snapshot.assumed_format,
+            whole_programme: false,
+        },
+        settings,
+    )
+}
+
+/// The finding rules, most severe first.
+pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> Vec<Finding> {
     let mut findings = Vec::new();
-    let status = &snapshot.channel_status;
-    let pick = |f: &dyn Fn(&super::snapshot::ChannelStatus) -> bool| -> Vec<usize> {
+    let status = inputs.channels;
+    let pick = |f: &dyn Fn(&ChannelFacts) -> bool| -> Vec<usize> {
         status
             .iter()
             .filter(|s| f(s))
@@ -37,7 +106,7 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             .collect()
     };
 
-    let invalid = pick(&|s| s.reading.invalid_sample_count > 0);
+    let invalid = pick(&|s| s.invalid_samples > 0);
     if !invalid.is_empty() {
         findings.push(Finding {
             severity: Severity::Error,
@@ -46,14 +115,10 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: invalid,
         });
     }
-    let clipped = pick(&|s| s.reading.clip_count > 0);
+    let clipped = pick(&|s| s.clip_count > 0);
     if !clipped.is_empty() {
-        let total: u64 = status.iter().map(|s| s.reading.clip_count).sum();
-        let longest = status
-            .iter()
-            .map(|s| s.reading.longest_clip_run)
-            .max()
-            .unwrap_or(0);
+        let total: u64 = status.iter().map(|s| s.clip_count).sum();
+        let longest = status.iter().map(|s| s.longest_clip_run).max().unwrap_or(0);
         findings.push(Finding {
             severity: Severity::Error,
             code: FindingCode::Clipping,
@@ -64,7 +129,7 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: clipped,
         });
     }
-    let check = &snapshot.format_check;
+    let check = inputs.format_check;
     // Capsule signals read as B-format put every "dipole" at W's level and look like another
     // normalisation: one cause, reported once as a-format-suspected.
     let a_format = check.a_format_suspected;
@@ -135,13 +200,15 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: Vec::new(),
         });
     }
-    if check.ready && check.effective_order < snapshot.order {
-        findings.push(order_deficit(snapshot.order, check.effective_order));
+    let balance_measured = check.order_balance_db.len() == inputs.order + 1;
+    let judged = check.ready || (inputs.whole_programme && balance_measured);
+    if judged && check.effective_order < inputs.order {
+        findings.push(order_deficit(inputs.order, check.effective_order));
     }
     if let Some(detected) = check.detected
         && !a_format
         && check.ready
-        && detected != snapshot.assumed_format
+        && detected != inputs.assumed_format
         && check.confidence >= MISMATCH_CONFIDENCE
     {
         findings.push(Finding {
@@ -151,12 +218,12 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
                 "the signal looks like {} ({:.0} % confidence) but is read as {}",
                 detected.human_name(),
                 100.0 * check.confidence,
-                snapshot.assumed_format.human_name()
+                inputs.assumed_format.human_name()
             ),
             channels: Vec::new(),
         });
     }
-    let dc = pick(&|s| s.reading.dc_offset.abs() > DC_OFFSET_LIMIT);
+    let dc = pick(&|s| s.dc_offset.abs() > DC_OFFSET_LIMIT);
     if !dc.is_empty() {
         findings.push(Finding {
             severity: Severity::Warning,
@@ -165,5 +232,6 @@ pub fn collect_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec
             channels: dc,
         });
     }
+    findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
     findings
 }
