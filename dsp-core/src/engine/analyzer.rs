@@ -7,7 +7,9 @@
 //! maps, sources, DirAC, format check and findings.
 
 use super::control::AnalysisSettings;
-use super::diffuseness::{DiffusenessTracker, FirstOrderMoments, energy_and_diffuseness};
+use super::diffuseness::{
+    DiffusenessTracker, FirstOrderMoments, energy_and_diffuseness, first_order_moments,
+};
 use super::findings::{ChannelFacts, FindingInputs, collect_findings, live_findings};
 use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
@@ -316,7 +318,7 @@ impl Analyzer {
                 }
                 count[b] += 1;
                 if m >= 4 {
-                    diffuseness.push(b, &first_order_moments(frame, m, conversion));
+                    diffuseness.push(b, &raw_first_order_moments(frame, m, conversion));
                 }
             }
         });
@@ -688,21 +690,15 @@ impl Analyzer {
 }
 
 /// First-order SN3D moments of one raw frame covariance (M×M, input order) for DirAC.
-fn first_order_moments(raw: &[f64], m: usize, conversion: &ConversionPlan) -> FirstOrderMoments {
-    let entry = |a: usize, b: usize| {
+fn raw_first_order_moments(
+    raw: &[f64],
+    m: usize,
+    conversion: &ConversionPlan,
+) -> FirstOrderMoments {
+    first_order_moments(|a, b| {
         let (sa, sb) = (conversion.source_channel(a), conversion.source_channel(b));
         conversion.gain(a) * conversion.gain(b) * raw[sa * m + sb]
-    };
-    // ACN 3, 1, 2 are X, Y, Z; the order of FirstOrderMoments.
-    [
-        entry(0, 0),
-        entry(3, 3),
-        entry(1, 1),
-        entry(2, 2),
-        entry(0, 3),
-        entry(0, 1),
-        entry(0, 2),
-    ]
+    })
 }
 
 fn grid_for(step_deg: f64) -> Result<EquirectGrid, EngineError> {
@@ -730,17 +726,7 @@ pub fn dirac(r_sn3d: &[f64], m: usize) -> BandIntensity {
             w_level_dbfs,
         };
     }
-    // ACN 3, 1, 2 are X, Y, Z.
-    let entry = |a: usize, b: usize| r_sn3d[a * m + b];
-    let moments = [
-        w2,
-        entry(3, 3),
-        entry(1, 1),
-        entry(2, 2),
-        entry(0, 3),
-        entry(0, 1),
-        entry(0, 2),
-    ];
+    let moments = first_order_moments(|a, b| r_sn3d[a * m + b]);
     let intensity = [moments[4], moments[5], moments[6]];
     BandIntensity {
         direction: intensity

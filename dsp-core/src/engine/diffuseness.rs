@@ -19,6 +19,20 @@ pub const SHORT_TIME_CONSTANT_S: f64 = 0.1;
 /// ⟨W·Z⟩ (the active intensity up to a constant).
 pub type FirstOrderMoments = [f64; 7];
 
+/// The moments from a covariance given by `entry(a, b)` = R[ACN a][ACN b] in SN3D.
+pub fn first_order_moments(entry: impl Fn(usize, usize) -> f64) -> FirstOrderMoments {
+    // ACN 3, 1, 2 are X, Y, Z.
+    [
+        entry(0, 0),
+        entry(3, 3),
+        entry(1, 1),
+        entry(2, 2),
+        entry(0, 3),
+        entry(0, 1),
+        entry(0, 2),
+    ]
+}
+
 /// DirAC energy E = W² + X² + Y² + Z² (SN3D) and diffuseness ψ = 1 − 2‖I‖/E of `moments`
 /// (Pulkki 2007), or `None` without energy.
 pub fn energy_and_diffuseness(moments: &FirstOrderMoments) -> Option<(f64, f64)> {

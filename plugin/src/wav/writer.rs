@@ -77,12 +77,7 @@ impl WavWriter<BufWriter<File>> {
         spec: WavSpec,
         options: WriterOptions,
     ) -> Result<Self, WavError> {
-        let path = path.as_ref();
-        // Check the spec before touching the file system.
-        spec.validated_block_align()?;
-        let file = File::create(path)
-            .map_err(|e| WavError::io(format!("creating {}", path.display()), e))?;
-        WavWriter::new(BufWriter::new(file), spec, options)
+        WavWriter::new(create_file(path.as_ref(), spec)?, spec, options)
     }
 
     /// Like [`WavWriter::with_options`], but the extensible fmt chunk carries the AMB B-format
@@ -92,11 +87,7 @@ impl WavWriter<BufWriter<File>> {
         spec: WavSpec,
         options: WriterOptions,
     ) -> Result<Self, WavError> {
-        let path = path.as_ref();
-        spec.validated_block_align()?;
-        let file = File::create(path)
-            .map_err(|e| WavError::io(format!("creating {}", path.display()), e))?;
-        WavWriter::new_b_format(BufWriter::new(file), spec, options)
+        WavWriter::new_b_format(create_file(path.as_ref(), spec)?, spec, options)
     }
 }
 
@@ -407,6 +398,14 @@ fn encode(encoding: Encoding, out: &mut [u8], sample: impl Fn(usize) -> f32) {
             }
         }
     }
+}
+
+/// Creates the file a writer writes, after checking the spec (before touching the file system).
+fn create_file(path: &Path, spec: WavSpec) -> Result<BufWriter<File>, WavError> {
+    spec.validated_block_align()?;
+    let file =
+        File::create(path).map_err(|e| WavError::io(format!("creating {}", path.display()), e))?;
+    Ok(BufWriter::new(file))
 }
 
 #[cfg(test)]
