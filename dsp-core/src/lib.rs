@@ -53,3 +53,4 @@ pub mod render;
 pub mod scene;
 pub mod sh;
 pub mod sphere;
+pub mod wording;

@@ -7,6 +7,7 @@
 pub mod ambisonic_buses;
 pub mod audio;
 pub mod editor;
+pub mod look;
 pub mod params;
 pub mod player;
 pub mod scan;
