@@ -4,6 +4,7 @@
 //! starts the analysis engine (`fieldglass-dsp`) with its own thread; `process()` copies the
 //! buffer into the engine's pooled blocks and returns; the editor reads the latest snapshot.
 
+pub mod adm;
 pub mod ambisonic_buses;
 pub mod audio;
 pub mod editor;

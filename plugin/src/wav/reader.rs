@@ -83,7 +83,23 @@ pub struct WavReader<R> {
     frames_read: u64,
     b_format: bool,
     warnings: Vec<String>,
+    metadata: Vec<MetadataChunk>,
     scratch: Vec<u8>,
+}
+
+/// The metadata chunks kept from the file (ITU-R BS.2088: `chna` ties tracks to ADM IDs, `axml`
+/// holds the ADM XML of ITU-R BS.2076), with the largest body read of each.
+const METADATA_CHUNKS: [(&[u8; 4], u64); 2] = [
+    // 4 header bytes + 40 bytes per track UID; 65535 UIDs at most.
+    (b"chna", 4 + 40 * 65_535),
+    // ADM for a programme of a few hundred tracks stays well under this.
+    (b"axml", 16 * 1024 * 1024),
+];
+
+/// A metadata chunk's identifier and body.
+struct MetadataChunk {
+    id: [u8; 4],
+    body: Vec<u8>,
 }
 
 impl WavReader<BufReader<File>> {
@@ -123,6 +139,8 @@ impl<R: Read + Seek> WavReader<R> {
         };
 
         let mut fmt: Option<Fmt> = None;
+        let mut metadata = Vec::new();
+        let mut warnings = Vec::new();
         let (fmt, data_start, declared_data_bytes) = loop {
             if pos >= file_bytes {
                 return Err(WavError::MissingData {
@@ -157,6 +175,7 @@ impl<R: Read + Seek> WavReader<R> {
                 }
                 b"fmt " if fmt.is_none() => fmt = Some(source.read_fmt(body_start, size)?),
                 _ => {
+                    source.keep_metadata(&id, body_start, size, &mut metadata, &mut warnings)?;
                     if body_start.saturating_add(size) > file_bytes {
                         return Err(WavError::TruncatedHeader {
                             file_bytes,
@@ -180,7 +199,6 @@ impl<R: Read + Seek> WavReader<R> {
         } = fmt;
         let available_bytes = file_bytes - data_start;
         let block = block_align as u64;
-        let mut warnings = Vec::new();
         let data_bytes = recovered_data_bytes(
             &mut source,
             &DataLayout {
@@ -201,6 +219,14 @@ impl<R: Read + Seek> WavReader<R> {
                 found_frames: available_bytes / block,
             });
         }
+        // BW64 writers usually put `axml` (and sometimes `chna`) after the sample data.
+        source.read_trailing_metadata(
+            data_start.saturating_add(data_bytes + (data_bytes & 1)),
+            &ds64,
+            container,
+            &mut metadata,
+            &mut warnings,
+        );
         inner
             .seek(SeekFrom::Start(data_start))
             .map_err(|e| WavError::io(format!("seeking to the data at byte {data_start}"), e))?;
@@ -216,6 +242,7 @@ impl<R: Read + Seek> WavReader<R> {
             frames_read: 0,
             b_format,
             warnings,
+            metadata,
             scratch: vec![0; scratch_frames * block_align],
         })
     }
@@ -225,6 +252,14 @@ impl<R: Read + Seek> WavReader<R> {
     /// is a strong hint that the stream is FuMa; it does not by itself change any format choice.
     pub fn declares_b_format(&self) -> bool {
         self.b_format
+    }
+
+    /// The body of the `chna` or `axml` chunk, if the file carries one (the first of each).
+    pub fn metadata_chunk(&self, id: &[u8; 4]) -> Option<&[u8]> {
+        self.metadata
+            .iter()
+            .find(|c| &c.id == id)
+            .map(|c| c.body.as_slice())
     }
 
     /// Things about the file a user should know although it could be read, in plain words:
@@ -456,6 +491,74 @@ impl<R: Read + Seek> Source<'_, R> {
     }
 
     /// Reads the 12-byte header; returns the container and its 32-bit RIFF size field.
+    /// Keeps the body of a `chna` or `axml` chunk (the first of each) if it fits its cap and the
+    /// file; an oversized one is skipped with a warning.
+    fn keep_metadata(
+        &mut self,
+        id: &[u8; 4],
+        body_start: u64,
+        size: u64,
+        kept: &mut Vec<MetadataChunk>,
+        warnings: &mut Vec<String>,
+    ) -> Result<(), WavError> {
+        let Some(&(_, cap)) = METADATA_CHUNKS.iter().find(|(known, _)| *known == id) else {
+            return Ok(());
+        };
+        if kept.iter().any(|c| &c.id == id) || body_start.saturating_add(size) > self.file_bytes {
+            return Ok(());
+        }
+        if size > cap {
+            warnings.push(format!(
+                "the {} chunk holds {} (more than the {} read); its metadata was ignored",
+                show_id(id),
+                human_bytes(size),
+                human_bytes(cap)
+            ));
+            return Ok(());
+        }
+        let mut body = vec![0u8; size as usize];
+        self.read_exact_at(body_start, &mut body, &format!("the {} chunk", show_id(id)))?;
+        kept.push(MetadataChunk { id: *id, body });
+        Ok(())
+    }
+
+    /// Walks the chunks after the sample data for metadata. Whatever does not parse there is
+    /// left alone: the samples are readable, and the metadata reader reports what is missing.
+    fn read_trailing_metadata(
+        &mut self,
+        mut pos: u64,
+        ds64: &Ds64,
+        container: Container,
+        kept: &mut Vec<MetadataChunk>,
+        warnings: &mut Vec<String>,
+    ) {
+        // A handful of trailing chunks is usual; the bound keeps a hostile file's walk short.
+        for _ in 0..64 {
+            if pos.saturating_add(8) > self.file_bytes {
+                return;
+            }
+            let Ok((id, size32)) = self.read_chunk_header(pos) else {
+                return;
+            };
+            let size = if size32 == SIZE_PLACEHOLDER && container != Container::Riff {
+                match ds64.table.iter().find(|(table_id, _)| *table_id == id) {
+                    Some(&(_, size)) => size,
+                    None => return,
+                }
+            } else {
+                u64::from(size32)
+            };
+            let body_start = pos + 8;
+            if self
+                .keep_metadata(&id, body_start, size, kept, warnings)
+                .is_err()
+            {
+                return;
+            }
+            pos = body_start.saturating_add(size).saturating_add(size & 1);
+        }
+    }
+
     fn read_riff_header(&mut self) -> Result<(Container, u32), WavError> {
         let mut head = [0u8; 12];
         let got = self.read_at(0, &mut head, "the RIFF header")?;
