@@ -232,6 +232,10 @@ struct DemoArgs {
     /// Write an RF64 header even for small files.
     #[arg(long)]
     rf64: bool,
+    /// Write a BW64 file with ADM metadata (chna + axml, ITU-R BS.2088 / BS.2076) declaring
+    /// the HOA pack in the chosen format.
+    #[arg(long)]
+    adm: bool,
 }
 
 fn parse_band(text: &str) -> Result<[f64; 2], String> {
@@ -339,6 +343,7 @@ fn run_demo(args: DemoArgs) -> Result<ExitCode, CliError> {
         sample_rate_hz: args.sample_rate,
         float: args.sample_format == SampleFormatArg::Float32,
         rf64: args.rf64,
+        adm: args.adm,
     };
     let frames = write_demo(&args.write, options)?;
     println!(

@@ -158,6 +158,7 @@ fn directions_found_in_every_sample_format_and_container() {
             WriterOptions {
                 rf64: false,
                 extensible: true,
+                bw64: false,
             },
         ),
         ("pcm32", 32, SampleFormat::Int, WriterOptions::default()),
@@ -169,6 +170,7 @@ fn directions_found_in_every_sample_format_and_container() {
             WriterOptions {
                 rf64: true,
                 extensible: true,
+                bw64: false,
             },
         ),
         (
@@ -178,6 +180,7 @@ fn directions_found_in_every_sample_format_and_container() {
             WriterOptions {
                 rf64: true,
                 extensible: false,
+                bw64: false,
             },
         ),
     ];

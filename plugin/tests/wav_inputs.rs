@@ -392,6 +392,7 @@ fn finalised_files_from_the_writer_have_no_warnings() {
         WriterOptions {
             rf64: true,
             extensible: true,
+            bw64: false,
         },
     ] {
         let mut cursor = Cursor::new(Vec::new());
@@ -411,6 +412,7 @@ fn rf64_with_a_zero_ds64_data_size_reads_to_the_end() {
     let options = WriterOptions {
         rf64: true,
         extensible: false,
+        bw64: false,
     };
     let mut cursor = Cursor::new(Vec::new());
     let mut writer = WavWriter::new(&mut cursor, spec(1, 16, SampleFormat::Int), options).unwrap();

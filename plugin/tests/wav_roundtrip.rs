@@ -846,6 +846,7 @@ fn valid_headers() -> Vec<Vec<u8>> {
     let rf64 = WriterOptions {
         rf64: true,
         extensible: true,
+        bw64: false,
     };
     vec![
         valid_file(),

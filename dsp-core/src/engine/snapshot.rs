@@ -207,6 +207,10 @@ pub enum FindingCode {
     NoHeightContent,
     /// The four channels look like unconverted microphone capsule signals.
     AFormatSuspected,
+    /// The signal disagrees, with confidence, with the format the file's metadata declares.
+    MetadataMismatch,
+    /// The file carries format metadata that cannot be used; the signal decides.
+    MetadataUnreadable,
 }
 
 impl FindingCode {
@@ -223,6 +227,8 @@ impl FindingCode {
             Self::SizeRecovered => "size-recovered",
             Self::NoHeightContent => "no-height-content",
             Self::AFormatSuspected => "a-format-suspected",
+            Self::MetadataMismatch => "metadata-mismatch",
+            Self::MetadataUnreadable => "metadata-unreadable",
         }
     }
 }

@@ -1,9 +1,11 @@
 //! `fieldglass demo --write`: the demo scene as a WAV file a DAW can load.
 
 use super::CliError;
+use crate::adm::{chna_body, hoa_axml};
 use crate::wav::{SampleFormat, WavSpec, WavWriter, WriterOptions};
 use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
+use fieldglass_dsp::wording;
 use std::path::Path;
 
 /// Frames rendered and written at a time.
@@ -22,6 +24,8 @@ pub struct DemoOptions {
     pub float: bool,
     /// Force an RF64 header.
     pub rf64: bool,
+    /// Write a BW64 file with ADM metadata (`chna` + `axml`) declaring the HOA pack.
+    pub adm: bool,
 }
 
 /// Renders the demo scene into `path`, streaming in blocks (constant memory). Returns the frames
@@ -60,8 +64,20 @@ pub fn write_demo(path: &Path, options: DemoOptions) -> Result<u64, CliError> {
     let writer_options = WriterOptions {
         rf64: options.rf64,
         extensible: true,
+        bw64: options.adm,
     };
-    let mut writer = WavWriter::with_options(path, spec, writer_options)
+    let adm = if options.adm {
+        let (axml, entries) = hoa_axml(options.format, options.order, wording::DEMO_SCENE)
+            .ok_or_else(|| CliError::input("ADM has no word for this format".to_string()))?;
+        Some((chna_body(&entries), axml))
+    } else {
+        None
+    };
+    let chunks: Vec<([u8; 4], &[u8])> = adm
+        .iter()
+        .flat_map(|(chna, axml)| [(*b"chna", chna.as_slice()), (*b"axml", axml.as_bytes())])
+        .collect();
+    let mut writer = WavWriter::create_with_chunks(path, spec, writer_options, &chunks)
         .map_err(|e| CliError::output(format!("cannot write '{name}': {e}")))?;
     let total = (options.seconds * options.sample_rate_hz as f64).round() as u64;
     let mut buffers = vec![vec![0.0f32; BLOCK_FRAMES]; channels];

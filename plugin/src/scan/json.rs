@@ -58,6 +58,92 @@ pub struct Input {
     pub declares_b_format: bool,
     /// FuMa letters of a horizontal or mixed-order set read as FuMa ("WXYUV"), else null.
     pub mixed_order_set: Option<String>,
+    /// ADM metadata of a BW64 file (chna + axml); null when the file carries none.
+    pub metadata: Option<Metadata>,
+}
+
+/// What a file's ADM metadata declares (ITU-R BS.2076 / BS.2088 / BS.2094).
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct Metadata {
+    /// "ITU-R BS.2076" (ADM).
+    pub standard: &'static str,
+    /// audioPackFormatID of the HOA pack; null when unreadable.
+    pub pack_id: Option<String>,
+    pub pack_name: Option<String>,
+    /// "SN3D", "N3D" or "FuMa" as declared; null when unreadable.
+    pub normalization: Option<&'static str>,
+    pub order: Option<usize>,
+    /// The HOA tracks in file order.
+    pub tracks: Vec<MetadataTrack>,
+    /// Tracks outside the HOA pack (objects, beds): listed, not analysed.
+    pub other_tracks: Vec<OtherTrack>,
+    /// Some IDs were resolved from the ITU-R BS.2094 common definitions.
+    pub common_definitions: bool,
+    /// Why the metadata cannot be used (then the signal decides); null when it can.
+    pub error: Option<String>,
+}
+
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct MetadataTrack {
+    /// File channel, 0-based.
+    pub index: usize,
+    pub order: usize,
+    pub degree: i32,
+    pub acn: usize,
+}
+
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct OtherTrack {
+    /// File channel, 0-based.
+    pub index: usize,
+    /// ADM type ("Objects", "DirectSpeakers", …) or "unknown".
+    #[serde(rename = "type")]
+    pub kind: String,
+    pub name: String,
+}
+
+fn metadata_entry(metadata: &Result<crate::adm::AdmDeclaration, String>) -> Metadata {
+    match metadata {
+        Ok(d) => Metadata {
+            standard: "ITU-R BS.2076",
+            pack_id: Some(d.pack_id.clone()),
+            pack_name: Some(d.pack_name.clone()),
+            normalization: Some(d.normalization.label()),
+            order: Some(d.order),
+            tracks: d
+                .hoa_tracks
+                .iter()
+                .map(|t| MetadataTrack {
+                    index: t.file_channel,
+                    order: t.order,
+                    degree: t.degree,
+                    acn: t.acn,
+                })
+                .collect(),
+            other_tracks: d
+                .other_tracks
+                .iter()
+                .map(|t| OtherTrack {
+                    index: t.file_channel,
+                    kind: t.kind.clone(),
+                    name: t.name.clone(),
+                })
+                .collect(),
+            common_definitions: d.uses_common_definitions,
+            error: None,
+        },
+        Err(why) => Metadata {
+            standard: "ITU-R BS.2076",
+            pack_id: None,
+            pack_name: None,
+            normalization: None,
+            order: None,
+            tracks: Vec::new(),
+            other_tracks: Vec::new(),
+            common_definitions: false,
+            error: Some(why.clone()),
+        },
+    }
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -314,6 +400,7 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             container: result.input.container.clone(),
             declares_b_format: result.input.declares_b_format,
             mixed_order_set: result.input.mixed_order_set.clone(),
+            metadata: result.input.metadata.as_ref().map(metadata_entry),
         },
         assumed: Assumed {
             ordering,

@@ -6,7 +6,9 @@
 
 use super::CliError;
 use super::progress::Progress;
+use crate::adm::{self, AdmDeclaration};
 use crate::wav::{Container, SampleFormat, WavReader};
+use fieldglass_dsp::engine::findings::MISMATCH_CONFIDENCE;
 use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
@@ -16,6 +18,7 @@ use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander, Normalization};
 use fieldglass_dsp::meters::FullScale;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
+use fieldglass_dsp::wording;
 use std::path::PathBuf;
 use std::time::Instant;
 
@@ -121,6 +124,12 @@ pub struct InputInfo {
     pub warnings: Vec<String>,
     /// What a sample at full scale is in this file's encoding.
     pub full_scale: FullScale,
+    /// ADM metadata of a BW64 file: what it declares, or why it cannot be used; None when the
+    /// file carries none.
+    pub metadata: Option<Result<AdmDeclaration, String>>,
+    /// For each analysed channel, the file channel it comes from, when the analysis does not
+    /// take the file's channels as they are (HOA tracks in a declared order, beside objects).
+    pub route: Option<Vec<usize>>,
 }
 
 impl InputInfo {
@@ -201,12 +210,18 @@ impl ScanResult {
     }
 }
 
+/// The file channel of each analysed channel, and the file-order buffers read into.
+type RoutedTracks = (Vec<usize>, Vec<Vec<f32>>);
+
 /// Where blocks come from.
 enum Source {
     File {
         reader: WavReader<std::io::BufReader<std::fs::File>>,
         /// For a FuMa mixed-order set: the expander and the file-order buffers it reads from.
         mixed: Option<Box<(MixedOrderExpander, Vec<Vec<f32>>)>>,
+        /// For routed HOA tracks: the file channel of each analysed channel, and the
+        /// file-order buffers.
+        routed: Option<Box<RoutedTracks>>,
     },
     Demo {
         scene: Box<DemoScene>,
@@ -217,8 +232,23 @@ enum Source {
 impl Source {
     fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
         match self {
-            Source::File { reader, mixed } => {
+            Source::File {
+                reader,
+                mixed,
+                routed,
+            } => {
                 let unreadable = |e| CliError::input(format!("cannot read '{name}': {e}"));
+                if let Some(routed) = routed {
+                    let (route, file_buffers) = &mut **routed;
+                    let n = reader
+                        .read_planar(file_buffers, BLOCK_FRAMES)
+                        .map_err(unreadable)?;
+                    for (buffer, &file_channel) in buffers.iter_mut().zip(route.iter()) {
+                        buffer.clear();
+                        buffer.extend_from_slice(&file_buffers[file_channel][..n]);
+                    }
+                    return Ok(n);
+                }
                 let Some(mixed) = mixed else {
                     return reader
                         .read_planar(buffers, BLOCK_FRAMES)
@@ -277,13 +307,30 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
             };
             let sample_format = describe_sample_format(spec.sample_format, spec.bits_per_sample);
             let declares_b_format = reader.declares_b_format();
+            let channels = spec.channels as usize;
+            let metadata = adm::read_declaration(
+                reader.metadata_chunk(b"chna"),
+                reader.metadata_chunk(b"axml"),
+                channels,
+            );
+            let mut route = None;
+            if let Some(Ok(declared)) = &metadata
+                && options.assumed_source == AssumedSource::Default
+            {
+                options.assumed = declared.format();
+                options.assumed_source = AssumedSource::Metadata;
+                route = declared.route();
+            }
             if declares_b_format && options.assumed_source == AssumedSource::Default {
                 options.assumed = AmbiFormat::FUMA;
                 options.assumed_source = AssumedSource::Metadata;
             }
-            let channels = spec.channels as usize;
             let mixed = MixedOrderExpander::for_stream(options.assumed, channels)
+                .filter(|_| route.is_none())
                 .map(|e| Box::new((e, vec![Vec::with_capacity(BLOCK_FRAMES); channels])));
+            let routed = route
+                .clone()
+                .map(|r| Box::new((r, vec![Vec::with_capacity(BLOCK_FRAMES); channels])));
             let mixed_order_set = mixed.as_ref().map(|m| m.0.set().letters());
             let info = InputInfo {
                 path: Some(path.clone()),
@@ -315,8 +362,17 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
                     },
                     SampleFormat::Float => FullScale::Float,
                 },
+                metadata,
+                route,
             };
-            Ok((Source::File { reader, mixed }, info))
+            Ok((
+                Source::File {
+                    reader,
+                    mixed,
+                    routed,
+                },
+                info,
+            ))
         }
         ScanInput::Demo {
             order,
@@ -348,6 +404,8 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
                 mixed_order_set: None,
                 warnings: Vec::new(),
                 full_scale: FullScale::Float,
+                metadata: None,
+                route: None,
             };
             Ok((
                 Source::Demo {
@@ -372,7 +430,10 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
         } => Some(mixed.0),
         _ => None,
     };
-    let analysed_channels = expander.map_or(info.channels, |e| e.output_channels());
+    let analysed_channels = match &info.route {
+        Some(route) => route.len(),
+        None => expander.map_or(info.channels, |e| e.output_channels()),
+    };
     let layout = ChannelLayout::from_channel_count(analysed_channels)
         .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
     if info.frames == 0 {
@@ -451,8 +512,12 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     let mut channels = programme.channels.clone();
     let mut findings = programme.findings.clone();
     if let Some(e) = &expander {
-        to_file_channels(e, &mut channels, &mut findings);
+        to_file_channels(|c| e.source_channel(c), &mut channels, &mut findings);
     }
+    if let Some(route) = &info.route {
+        to_file_channels(|c| route.get(c).copied(), &mut channels, &mut findings);
+    }
+    metadata_findings(&info, &options, &snapshot, &mut findings);
     for warning in &info.warnings {
         findings.push(Finding {
             severity: Severity::Warning,
@@ -550,11 +615,11 @@ pub fn expected_balance_db(
 /// Channel figures and findings of an expanded mixed-order stream, back in file channels: the
 /// absent components have no row, and findings name file channels.
 fn to_file_channels(
-    expander: &MixedOrderExpander,
+    source_channel: impl Fn(usize) -> Option<usize>,
     channels: &mut Vec<ChannelSummary>,
     findings: &mut [Finding],
 ) {
-    channels.retain_mut(|c| match expander.source_channel(c.input_index) {
+    channels.retain_mut(|c| match source_channel(c.input_index) {
         Some(file_channel) => {
             c.input_index = file_channel;
             true
@@ -566,7 +631,62 @@ fn to_file_channels(
         f.channels = f
             .channels
             .iter()
-            .filter_map(|&c| expander.source_channel(c))
+            .filter_map(|&c| source_channel(c))
             .collect();
+    }
+}
+
+/// What the file's ADM metadata adds to the findings: a declaration the signal contradicts
+/// (`metadata-mismatch`, which replaces the engine's `format-mismatch` when the declaration was
+/// the assumption: same cause), or metadata that cannot be used (`metadata-unreadable`).
+fn metadata_findings(
+    info: &InputInfo,
+    options: &ScanOptions,
+    snapshot: &Snapshot,
+    findings: &mut Vec<Finding>,
+) {
+    match &info.metadata {
+        None => {}
+        Some(Err(why)) => findings.push(Finding {
+            severity: Severity::Warning,
+            code: FindingCode::MetadataUnreadable,
+            message: format!(
+                "the file's ADM metadata cannot be used ({why}); the format was taken from {}",
+                match options.assumed_source {
+                    AssumedSource::Option => "--assume",
+                    _ => "the default, and the signal was checked against it",
+                }
+            ),
+            channels: Vec::new(),
+        }),
+        Some(Ok(declared)) => {
+            let from_metadata = options.assumed_source == AssumedSource::Metadata;
+            if from_metadata {
+                findings.retain(|f| f.code != FindingCode::FormatMismatch);
+            }
+            // A routed declaration was analysed in its own order only when it was the
+            // assumption; otherwise the check saw the file's channels as they are.
+            let comparable = from_metadata || info.route.is_none() && declared.route().is_none();
+            let check = &snapshot.format_check;
+            if let Some(detected) = check.detected
+                && comparable
+                && check.ready
+                && !check.a_format_suspected
+                && detected != declared.format()
+                && check.confidence >= MISMATCH_CONFIDENCE
+            {
+                findings.push(Finding {
+                    severity: Severity::Error,
+                    code: FindingCode::MetadataMismatch,
+                    message: format!(
+                        "the file's ADM metadata declares {} but the signal looks like {} ({})",
+                        declared.format().human_name(),
+                        detected.human_name(),
+                        wording::likelihood(check.confidence)
+                    ),
+                    channels: Vec::new(),
+                });
+            }
+        }
     }
 }

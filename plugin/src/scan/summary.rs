@@ -17,6 +17,9 @@ pub fn format_verdict(result: &ScanResult) -> String {
     let assumed = result.options.assumed;
     let mut line = format!("read as {}", assumed.human_name());
     match result.options.assumed_source {
+        AssumedSource::Metadata if matches!(result.input.metadata, Some(Ok(_))) => {
+            line.push_str(" (as the file's ADM metadata declares)")
+        }
         AssumedSource::Metadata => line.push_str(" (as the file declares)"),
         AssumedSource::Default => line.push_str(" (the default)"),
         AssumedSource::Option => {}

@@ -25,6 +25,9 @@ pub struct WriterOptions {
     /// Write a WAVE_FORMAT_EXTENSIBLE fmt chunk. It is also chosen automatically for more than
     /// two channels or when the spec carries a channel mask (a missing mask is written as 0).
     pub extensible: bool,
+    /// Write a 'BW64' header (ITU-R BS.2088) with a ds64 chunk, the container ADM metadata
+    /// travels in.
+    pub bw64: bool,
 }
 
 /// Body size of the JUNK placeholder = a ds64 body with an empty table:
@@ -57,6 +60,8 @@ pub struct WavWriter<W: Write + Seek> {
     data_size_offset: u64,
     frames_written: u64,
     force_rf64: bool,
+    /// The long-form header says 'BW64' rather than 'RF64'.
+    bw64: bool,
     /// Largest RIFF size kept as plain RIFF (u32::MAX; lowered in tests to exercise promotion).
     max_riff_bytes: u64,
     failed: bool,
@@ -89,12 +94,29 @@ impl WavWriter<BufWriter<File>> {
     ) -> Result<Self, WavError> {
         WavWriter::new_b_format(create_file(path.as_ref(), spec)?, spec, options)
     }
+
+    /// Like [`WavWriter::with_options`], with further chunks (e.g. `chna`, `axml`) written
+    /// between the fmt chunk and the data.
+    pub fn create_with_chunks(
+        path: impl AsRef<Path>,
+        spec: WavSpec,
+        options: WriterOptions,
+        chunks: &[([u8; 4], &[u8])],
+    ) -> Result<Self, WavError> {
+        WavWriter::with_subformat(
+            create_file(path.as_ref(), spec)?,
+            spec,
+            options,
+            false,
+            chunks,
+        )
+    }
 }
 
 impl<W: Write + Seek> WavWriter<W> {
     /// Writes the header at the current position of `inner` and prepares for samples.
     pub fn new(inner: W, spec: WavSpec, options: WriterOptions) -> Result<Self, WavError> {
-        Self::with_subformat(inner, spec, options, false)
+        Self::with_subformat(inner, spec, options, false, &[])
     }
 
     /// Like [`WavWriter::new`], but always extensible, with the AMB B-format SubFormat GUID for
@@ -106,7 +128,7 @@ impl<W: Write + Seek> WavWriter<W> {
             channel_mask: Some(0),
             ..spec
         };
-        Self::with_subformat(inner, spec, options, true)
+        Self::with_subformat(inner, spec, options, true, &[])
     }
 
     fn with_subformat(
@@ -114,6 +136,7 @@ impl<W: Write + Seek> WavWriter<W> {
         spec: WavSpec,
         options: WriterOptions,
         b_format: bool,
+        chunks: &[([u8; 4], &[u8])],
     ) -> Result<Self, WavError> {
         let block_align = spec.validated_block_align()?;
         if block_align > usize::from(u16::MAX) {
@@ -195,6 +218,20 @@ impl<W: Write + Seek> WavWriter<W> {
         } else {
             None
         };
+        for (id, body) in chunks {
+            let size = u32::try_from(body.len()).map_err(|_| {
+                WavError::InvalidFormat(format!(
+                    "a {}-byte chunk does not fit a RIFF header",
+                    body.len()
+                ))
+            })?;
+            header.extend_from_slice(id);
+            header.extend_from_slice(&size.to_le_bytes());
+            header.extend_from_slice(body);
+            if body.len() % 2 == 1 {
+                header.push(0);
+            }
+        }
         header.extend_from_slice(b"data");
         let data_size_offset = header.len() as u64;
         header.extend_from_slice(&0u32.to_le_bytes());
@@ -212,7 +249,8 @@ impl<W: Write + Seek> WavWriter<W> {
             fact_count_offset,
             data_size_offset,
             frames_written: 0,
-            force_rf64: options.rf64,
+            force_rf64: options.rf64 || options.bw64,
+            bw64: options.bw64,
             max_riff_bytes: u64::from(u32::MAX),
             failed: false,
             finalized: false,
@@ -317,7 +355,7 @@ impl<W: Write + Seek> WavWriter<W> {
             ds64.extend_from_slice(&data_bytes.to_le_bytes());
             ds64.extend_from_slice(&frames.to_le_bytes());
             ds64.extend_from_slice(&0u32.to_le_bytes()); // table length
-            self.patch(0, b"RF64")?;
+            self.patch(0, if self.bw64 { b"BW64" } else { b"RF64" })?;
             self.patch(4, &SIZE_PLACEHOLDER.to_le_bytes())?;
             self.patch(12, &ds64)?;
             self.patch(self.data_size_offset, &SIZE_PLACEHOLDER.to_le_bytes())?;
