@@ -7,7 +7,8 @@
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use fieldglass::scan::demo::{DemoOptions, write_demo};
 use fieldglass::scan::{
-    AssumedSource, CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, json, report_html, scan, summary,
+    AssumedSource, CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, batch, index, json, report_html,
+    scan, summary,
 };
 use fieldglass_dsp::engine::{MapMethod, Severity};
 use fieldglass_dsp::format::AmbiFormat;
@@ -32,6 +33,9 @@ enum Command {
     Scan(ScanArgs),
     /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
     Demo(DemoArgs),
+    /// Build the batch index page from JSON lines written by `scan --json-lines` (e.g. on
+    /// other machines).
+    Index(IndexArgs),
     /// Run the monitor as a standalone app (JACK, ALSA or a silent dummy device).
     #[cfg(feature = "standalone")]
     Live(LiveArgs),
@@ -176,9 +180,14 @@ enum SampleFormatArg {
 
 #[derive(Args, Debug)]
 struct ScanArgs {
-    /// The file to scan (WAV, RF64 or BW64).
-    #[arg(required_unless_present = "demo", conflicts_with = "demo")]
-    file: Option<PathBuf>,
+    /// Files or folders to scan (WAV, AMB, RF64, BW64; folders are searched recursively for
+    /// those). One file prints a summary; several files or a folder make a batch.
+    #[arg(
+        required_unless_present = "demo",
+        conflicts_with = "demo",
+        value_name = "FILE|DIR"
+    )]
+    inputs: Vec<PathBuf>,
     /// Scan the built-in demo scene instead of a file.
     #[arg(long)]
     demo: bool,
@@ -195,9 +204,16 @@ struct ScanArgs {
     /// Write the JSON result to PATH ("-" = stdout, replacing the summary).
     #[arg(long, value_name = "PATH|-")]
     json: Option<String>,
-    /// Write report.html and its pictures into DIR.
+    /// Write report.html and its pictures into DIR (a batch: one folder per file and
+    /// index.html).
     #[arg(long, value_name = "DIR")]
     report: Option<PathBuf>,
+    /// A batch: write one fieldglass-scan/1 JSON document per line to PATH ("-" = stdout).
+    #[arg(long, value_name = "PATH|-")]
+    json_lines: Option<String>,
+    /// A batch: files scanned at once [default: the number of cores].
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u32).range(1..=256))]
+    jobs: Option<u32>,
     /// Band edges LO-HI in Hz (low/mid and mid/high), e.g. 250-4000.
     #[arg(long, value_name = "LO-HI", value_parser = parse_band)]
     band: Option<[f64; 2]>,
@@ -207,6 +223,17 @@ struct ScanArgs {
     /// Exit with code 3 if any finding is at least this severe.
     #[arg(long, value_enum)]
     fail_on: Option<FailOn>,
+}
+
+#[derive(Args, Debug)]
+struct IndexArgs {
+    /// JSON lines files (one fieldglass-scan/1 document or error object per line).
+    #[arg(required = true, value_name = "JSONL")]
+    lines: Vec<PathBuf>,
+    /// Folder for index.html; reports already in it (one folder per file, as `scan --report`
+    /// writes them) are linked.
+    #[arg(long, value_name = "DIR")]
+    report: PathBuf,
 }
 
 #[derive(Args, Debug)]
@@ -256,8 +283,78 @@ fn parse_band(text: &str) -> Result<[f64; 2], String> {
     Ok([lo, hi])
 }
 
+fn run_index(args: IndexArgs) -> Result<ExitCode, CliError> {
+    let mut rows = Vec::new();
+    for path in &args.lines {
+        let text = std::fs::read_to_string(path)
+            .map_err(|e| CliError::input(format!("cannot read '{}': {e}", path.display())))?;
+        rows.extend(index::rows_from_json_lines(
+            &text,
+            &path.display().to_string(),
+        )?);
+    }
+    let written = index::write_index(&rows, &args.report)?;
+    println!(
+        "fieldglass index: {} file(s), index written to '{}'",
+        rows.len(),
+        written.display()
+    );
+    Ok(ExitCode::SUCCESS)
+}
+
+fn scan_options(args: &ScanArgs) -> ScanOptions {
+    let defaults = ScanOptions::default();
+    ScanOptions {
+        assumed: args.assume.map_or(AmbiFormat::ACN_SN3D, |a| a.format()),
+        assumed_source: if args.assume.is_some() {
+            AssumedSource::Option
+        } else {
+            AssumedSource::Default
+        },
+        method: args.method.method(),
+        band_edges_hz: args.band.unwrap_or(defaults.band_edges_hz),
+        progress: true,
+        ..defaults
+    }
+}
+
+fn fail_on_severity(fail_on: Option<FailOn>) -> Option<Severity> {
+    fail_on.map(|f| match f {
+        FailOn::Warning => Severity::Warning,
+        FailOn::Error => Severity::Error,
+    })
+}
+
 fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
-    let input = match (&args.file, args.demo) {
+    let single = match args.inputs.as_slice() {
+        [one] if !one.is_dir() && args.json_lines.is_none() => Some(one.clone()),
+        _ => None,
+    };
+    if !args.demo && single.is_none() {
+        if args.json.is_some() {
+            return Err(CliError::input(
+                "--json takes one input; for several files or a folder use --json-lines",
+            ));
+        }
+        let (files, errors) = batch::collect_inputs(&args.inputs);
+        if files.is_empty() && errors.is_empty() {
+            return Err(CliError::input(
+                "no file to scan: the folders hold no .wav, .amb, .rf64 or .bw64 files",
+            ));
+        }
+        let options = batch::BatchOptions {
+            scan: scan_options(&args),
+            jobs: args.jobs.map_or_else(
+                || std::thread::available_parallelism().map_or(1, |n| n.get()),
+                |j| j as usize,
+            ),
+            json_lines: args.json_lines.clone(),
+            report: args.report.clone(),
+            fail_on: fail_on_severity(args.fail_on),
+        };
+        return Ok(ExitCode::from(batch::run_batch(&files, errors, &options)));
+    }
+    let input = match (single, args.demo) {
         (_, true) => {
             if !(args.seconds.is_finite() && args.seconds > 0.0 && args.seconds <= 86_400.0) {
                 return Err(CliError::input(format!(
@@ -272,23 +369,10 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
                 format: AmbiFormat::ACN_SN3D,
             }
         }
-        (Some(path), false) => ScanInput::File(path.clone()),
+        (Some(path), false) => ScanInput::File(path),
         (None, false) => return Err(CliError::input("scan needs a FILE or --demo")),
     };
-    let defaults = ScanOptions::default();
-    let options = ScanOptions {
-        assumed: args.assume.map_or(AmbiFormat::ACN_SN3D, |a| a.format()),
-        assumed_source: if args.assume.is_some() {
-            AssumedSource::Option
-        } else {
-            AssumedSource::Default
-        },
-        method: args.method.method(),
-        band_edges_hz: args.band.unwrap_or(defaults.band_edges_hz),
-        progress: true,
-        ..defaults
-    };
-    let result = scan(&input, options)?;
+    let result = scan(&input, scan_options(&args))?;
     let json_to_stdout = args.json.as_deref() == Some("-");
     if let Some(target) = args.json.as_deref() {
         let text = json::to_json_string(&result);
@@ -311,11 +395,7 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         let shown = report.as_ref().map(|p| p.display().to_string());
         print!("{}", summary::summary(&result, shown.as_deref()));
     }
-    if let Some(fail_on) = args.fail_on {
-        let threshold = match fail_on {
-            FailOn::Warning => Severity::Warning,
-            FailOn::Error => Severity::Error,
-        };
+    if let Some(threshold) = fail_on_severity(args.fail_on) {
         let hits: Vec<&str> = result
             .findings
             .iter()
@@ -362,6 +442,7 @@ fn main() -> ExitCode {
     let outcome = match cli.command {
         Command::Scan(args) => run_scan(args),
         Command::Demo(args) => run_demo(args),
+        Command::Index(args) => run_index(args),
         #[cfg(feature = "standalone")]
         Command::Live(args) => run_live(args),
     };

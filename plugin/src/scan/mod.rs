@@ -9,18 +9,20 @@
 //! - [`demo`] writes the demo scene to a WAV file.
 //! - [`summary`] is the short human summary printed on stdout.
 
+pub mod batch;
 pub mod charts;
 pub mod demo;
 mod font;
+pub mod index;
 pub mod json;
-mod progress;
+pub mod progress;
 pub mod report_html;
 pub mod run;
 pub mod summary;
 
 pub use run::{
     AssumedSource, BandResult, ChannelSummary, InputInfo, ScanInput, ScanOptions, ScanResult,
-    TimelinePoint, scan,
+    TimelinePoint, scan, scan_observed,
 };
 
 use std::fmt;

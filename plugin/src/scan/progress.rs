@@ -1,6 +1,6 @@
 //! Progress bar on stderr for long scans, only when stderr is a terminal.
 
-use indicatif::{ProgressBar, ProgressStyle};
+use indicatif::{MultiProgress, ProgressBar, ProgressStyle};
 use std::io::IsTerminal;
 
 /// Inputs shorter than this (audio seconds) finish too quickly to need a bar.
@@ -25,6 +25,26 @@ impl Progress {
             bar
         });
         Self { bar }
+    }
+
+    /// A bar for one file of a batch, inside the batch's bars (`None`: no bar).
+    pub fn in_batch(bars: Option<&MultiProgress>, name: &str, total_frames: u64) -> Self {
+        let bar = bars.map(|bars| {
+            let bar = bars.add(ProgressBar::new(total_frames));
+            if let Ok(style) =
+                ProgressStyle::with_template("  {prefix:30!} [{bar:30}] {percent:>3}%")
+            {
+                bar.set_style(style.progress_chars("=> "));
+            }
+            bar.set_prefix(name.to_owned());
+            bar
+        });
+        Self { bar }
+    }
+
+    /// No bar.
+    pub fn none() -> Self {
+        Self { bar: None }
     }
 
     pub fn advance(&mut self, frames: u64) {

@@ -420,6 +420,17 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
 
 /// Scans `input`. Errors carry the exit code: 2 for anything about the input.
 pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliError> {
+    scan_observed(input, options, |info| {
+        Progress::new(info.frames, info.sample_rate_hz, options.progress)
+    })
+}
+
+/// [`scan`] with the progress display made by `progress` once the input is open.
+pub fn scan_observed(
+    input: &ScanInput,
+    options: ScanOptions,
+    progress: impl FnOnce(&InputInfo) -> Progress,
+) -> Result<ScanResult, CliError> {
     let started = Instant::now();
     let mut options = options;
     let (mut source, info) = open(input, &mut options)?;
@@ -474,7 +485,7 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     }
     analyzer.reserve_block(BLOCK_FRAMES);
 
-    let mut progress = Progress::new(info.frames, info.sample_rate_hz, options.progress);
+    let mut progress = progress(&info);
     let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); analysed_channels];
     let mut timeline = Vec::new();
     let mut timeline_stride = 1usize;
