@@ -104,10 +104,7 @@ mod tests {
         assert_eq!(channel_label(16, None), "channel 17 (extra)");
         // FuMa file order: the fifth file channel (R) is ACN 6.
         assert_eq!(channel_label(4, Some(6)), "channel 5 (ACN 6)");
-        assert_eq!(
-            channel_list(&[2, 3], |i| Some(i)),
-            "channels 3 (ACN 2), 4 (ACN 3)"
-        );
+        assert_eq!(channel_list(&[2, 3], Some), "channels 3 (ACN 2), 4 (ACN 3)");
         assert_eq!(channel_list(&[16], |_| None), "channel 17 (extra)");
     }
 
