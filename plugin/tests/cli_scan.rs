@@ -872,13 +872,18 @@ const OTHER_NAMES_FOR_LOUDER_THAN_W: [&str; 5] = [
 
 #[test]
 fn louder_than_w_has_one_name_in_summary_and_report() {
-    // First order SN3D, one source; channel 2 (Y, ACN 1) boosted ×4 (+12 dB), so its SN3D
-    // level exceeds W's by more than the 0.5 dB tolerance: by construction.
+    // First order SN3D, three independent sources (one alone would make all four channels
+    // coherent, which reads as capsule signals); channel 2 (Y, ACN 1) boosted ×4 (+12 dB), so
+    // its SN3D level exceeds W's by more than the 0.5 dB tolerance: by construction.
     let dir = tmp();
     let mut planes = encode(
         1,
         AmbiFormat::ACN_SN3D,
-        &[(Direction::new(30.0, 20.0), 0.2)],
+        &[
+            (Direction::new(30.0, 20.0), 0.2),
+            (Direction::new(-100.0, -10.0), 0.15),
+            (Direction::new(150.0, 40.0), 0.12),
+        ],
         RATE as usize,
     );
     for v in planes[1].iter_mut() {
@@ -892,7 +897,7 @@ fn louder_than_w_has_one_name_in_summary_and_report() {
         .unwrap()
         .iter()
         .find(|x| x["code"] == "over-omni")
-        .expect("the JSON code stays over-omni");
+        .unwrap_or_else(|| panic!("the JSON code stays over-omni: {}", doc["findings"]));
     assert_eq!(finding["channels"], serde_json::json!([1]));
 
     let report = dir.path().join("report");
@@ -1007,4 +1012,140 @@ fn the_readme_carries_the_one_caution() {
         words(&readme).contains(fieldglass_dsp::wording::CAUTION),
         "README's caution differs from wording::CAUTION"
     );
+}
+
+/// RGB of pixel (x, y) of a PNG file written by the report (8-bit RGB).
+fn png_pixel(path: &Path, x: usize, y: usize) -> [u8; 3] {
+    let decoder = png::Decoder::new(std::fs::File::open(path).unwrap());
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    assert_eq!(info.color_type, png::ColorType::Rgb);
+    let i = 3 * (y * info.width as usize + x);
+    [buf[i], buf[i + 1], buf[i + 2]]
+}
+
+/// Pixel of the report's map picture at a direction: the map area starts at (76, 12) and has
+/// 2 pixels per degree, azimuth +180° at its left edge (the layout of `charts::map_drawing`).
+fn map_pixel(path: &Path, azimuth_deg: f64, elevation_deg: f64) -> [u8; 3] {
+    let x = 76.0 + (180.0 - azimuth_deg) * 2.0;
+    let y = 12.0 + (90.0 - elevation_deg) * 2.0;
+    png_pixel(path, x as usize, y as usize)
+}
+
+#[test]
+fn picture_behind_the_report_maps_with_yaw_and_opacity() {
+    let dir = tmp();
+    let planes = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[(Direction::new(-30.0, 0.0), 0.3)],
+        RATE as usize / 2,
+    );
+    let wav = dir.path().join("one-source.wav");
+    write_float(&wav, &planes);
+    // A 64×32 equirectangular still: red on its left half (azimuth > 0), black on its right.
+    let (w, h) = (64, 32);
+    let mut rgba = Vec::with_capacity(w * h * 4);
+    for _ in 0..h {
+        for x in 0..w {
+            rgba.extend_from_slice(if x < w / 2 {
+                &[255, 0, 0, 255]
+            } else {
+                &[0, 0, 0, 255]
+            });
+        }
+    }
+    let still = dir.path().join("still.png");
+    fieldglass::picture::write_png(
+        &still,
+        &fieldglass::picture::Picture {
+            width: w,
+            height: h,
+            rgba,
+        },
+    )
+    .unwrap();
+    let scan_with = |report: &Path, yaw: &str| {
+        let out = run(&[
+            "scan",
+            wav.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+            "--picture",
+            still.to_str().unwrap(),
+            "--picture-opacity",
+            "1",
+            "--picture-yaw",
+            yaw,
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        report.join("map-full.png")
+    };
+    // Opacity 1 shows the picture alone; away from grid lines and markers.
+    let straight = scan_with(&dir.path().join("straight"), "0");
+    assert_eq!(map_pixel(&straight, 75.0, 45.0), [255, 0, 0], "left is red");
+    assert_eq!(
+        map_pixel(&straight, -105.0, 45.0),
+        [0, 0, 0],
+        "right is black"
+    );
+    // Turned by 180°: the picture's left half now lies on the scene's right.
+    let turned = scan_with(&dir.path().join("turned"), "180");
+    assert_eq!(map_pixel(&turned, 75.0, 45.0), [0, 0, 0]);
+    assert_eq!(map_pixel(&turned, -105.0, 45.0), [255, 0, 0]);
+    let html = std::fs::read_to_string(dir.path().join("turned/report.html")).unwrap();
+    assert!(html.contains("Behind the maps"), "the report says so");
+}
+
+#[test]
+fn a_missing_or_broken_picture_stops_before_the_scan() {
+    let dir = tmp();
+    let wav = dir.path().join("short.wav");
+    write_float(
+        &wav,
+        &encode(
+            1,
+            AmbiFormat::ACN_SN3D,
+            &[(Direction::new(0.0, 0.0), 0.3)],
+            4800,
+        ),
+    );
+    let broken = dir.path().join("broken.png");
+    std::fs::write(&broken, b"\x89PNG\r\n\x1a\nnot really").unwrap();
+    let text = dir.path().join("notes.png");
+    std::fs::write(&text, b"a text file").unwrap();
+    let missing = dir.path().join("missing.jpg");
+    for (picture, needle) in [
+        (&missing, "cannot read the picture"),
+        (&broken, "cannot be decoded"),
+        (&text, "not a PNG or JPEG"),
+    ] {
+        let report = dir.path().join("report");
+        let out = run(&[
+            "scan",
+            wav.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+            "--picture",
+            picture.to_str().unwrap(),
+        ]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{stderr}");
+        assert!(stderr.contains(needle), "{needle}: {stderr}");
+        assert!(!stderr.contains("panicked"), "{stderr}");
+        assert!(!report.exists(), "stopped before the scan and the report");
+    }
+    // A picture without a report has nowhere to go: a usage error.
+    let out = run(&[
+        "scan",
+        wav.to_str().unwrap(),
+        "--picture",
+        missing.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(2));
 }

@@ -4,10 +4,14 @@
 //! PNG data URI inside the SVG. No external resources: it opens offline.
 
 use super::CliError;
-use super::charts::{Drawing, MapLayers, map_drawing, order_balance_drawing, timeline_drawing};
+use super::charts::{
+    Backdrop, Drawing, MAP_WIDTH, MapLayers, map_drawing, order_balance_drawing, timeline_drawing,
+};
 use super::json::to_json_string;
 use super::run::{BandResult, ChannelSummary, ScanResult, expected_balance_db};
 use super::summary::format_verdict;
+use crate::picture::Picture;
+use fieldglass_dsp::beam::default_map_range_db;
 use fieldglass_dsp::engine::{Band, MapMethod, Severity};
 use fieldglass_dsp::format::Normalization;
 use fieldglass_dsp::wording;
@@ -27,8 +31,24 @@ pub fn map_file(band: Band) -> String {
 
 /// Colour-scale range of the report's maps, dB below each map's maximum: the editor's default
 /// for the same method and order.
-pub fn map_range_db(_method: MapMethod, _order: usize) -> f64 {
-    30.0
+pub fn map_range_db(method: MapMethod, order: usize) -> f64 {
+    default_map_range_db(method, order)
+}
+
+/// Longest side a picture is shrunk to for the report (twice the map's width: enough for its
+/// 720 × 360 pixels).
+pub const PICTURE_MAX_SIDE: usize = 2 * MAP_WIDTH;
+
+/// A picture behind the report's maps, with the editor's meaning of yaw and opacity.
+#[derive(Clone, Debug)]
+pub struct ReportPicture {
+    /// How the picture is named in the report (its path as given).
+    pub name: String,
+    pub picture: Picture,
+    /// Azimuth the picture's centre is turned to, degrees.
+    pub yaw_deg: f64,
+    /// 0 (maps only) … 1 (picture only).
+    pub opacity: f64,
 }
 
 const STYLE: &str = r#"
@@ -97,7 +117,7 @@ fn write_file(path: &Path, bytes: &[u8]) -> Result<(), CliError> {
 }
 
 /// A picture: written as a PNG file and returned as inline SVG.
-fn picture(dir: &Path, file: &str, drawing: &Drawing) -> Result<String, CliError> {
+fn figure(dir: &Path, file: &str, drawing: &Drawing) -> Result<String, CliError> {
     let cannot = |e: String| CliError::output(format!("cannot draw '{file}': {e}"));
     write_file(&dir.join(file), &drawing.to_png().map_err(cannot)?)?;
     drawing.to_svg().map_err(cannot)
@@ -108,6 +128,7 @@ fn band_layers<'a>(
     band: &'a BandResult,
     sources: &'a [(f64, f64, f64)],
     range_db: f64,
+    backdrop: Option<Backdrop<'a>>,
 ) -> MapLayers<'a> {
     MapLayers {
         map_db: &band.map.values_db,
@@ -116,7 +137,7 @@ fn band_layers<'a>(
         range_db,
         view_yaw_deg: 0.0,
         sources,
-        backdrop: None,
+        backdrop,
     }
 }
 
@@ -201,21 +222,30 @@ fn sources_table(out: &mut String, sources: &[fieldglass_dsp::engine::SourceRead
 }
 
 /// Writes the report into `dir` (created if needed); returns the path of `report.html`.
-pub fn write_report(result: &ScanResult, dir: &Path) -> Result<PathBuf, CliError> {
+/// `picture`, if any, is shown behind every map.
+pub fn write_report(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<PathBuf, CliError> {
     std::fs::create_dir_all(dir).map_err(|e| {
         CliError::output(format!(
             "cannot create the report directory '{}': {e}",
             dir.display()
         ))
     })?;
-    let html = build_html(result, dir)?;
+    let html = build_html(result, dir, picture)?;
     let path = dir.join(REPORT_FILE);
     write_file(&path, html.as_bytes())?;
     write_file(&dir.join(JSON_FILE), to_json_string(result).as_bytes())?;
     Ok(path)
 }
 
-fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
+fn build_html(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<String, CliError> {
     let input = &result.input;
     let snap = &result.snapshot;
     let omni = &snap.programme.omni;
@@ -353,6 +383,15 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         wording::LEFT,
         wording::UP,
     );
+    if let Some(p) = picture {
+        let _ = writeln!(
+            h,
+            "<p class=\"muted\">Behind the maps: <code>{}</code> at {:.0} % opacity, its centre turned to azimuth {}°.</p>",
+            escape(&p.name),
+            100.0 * p.opacity,
+            wording::degrees(p.yaw_deg).replace('-', "−")
+        );
+    }
     for band in &result.bands {
         let title = band_title(band.band, band.range_hz);
         let _ = writeln!(h, "<h3>{title}</h3>");
@@ -367,8 +406,14 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
                 )
             })
             .collect();
-        let drawing = map_drawing(&band_layers(band, &sources, range_db), &title);
-        let img = picture(dir, &map_file(band.band), &drawing)?;
+        let sample = |az: f64, el: f64| picture.map_or([0; 4], |p| p.picture.sample(az, el));
+        let backdrop = picture.map(|p| Backdrop {
+            sample: &sample,
+            yaw_deg: p.yaw_deg,
+            opacity: p.opacity,
+        });
+        let drawing = map_drawing(&band_layers(band, &sources, range_db, backdrop), &title);
+        let img = figure(dir, &map_file(band.band), &drawing)?;
         let _ = writeln!(
             h,
             "<figure>{img}<figcaption>Diffuseness {} · W level in band {} dBFS</figcaption></figure>",
@@ -387,7 +432,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         escape(result.options.method.human_name()),
         1.0 / super::run::TIMELINE_RATE_HZ
     );
-    let img = picture(
+    let img = figure(
         dir,
         TIMELINE_FILE,
         &timeline_drawing(&result.timeline, input.duration_s()),
@@ -417,7 +462,7 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
          field each order carries as much energy as W in SN3D (0 dB); N3D content shows 10·log10(2n+1) dB; \
          FuMa content about +3 dB at first order (W at −3 dB). The short ticks show what each would read as here.</p>\n",
     );
-    let img = picture(
+    let img = figure(
         dir,
         ORDER_BALANCE_FILE,
         &order_balance_drawing(result.order_balance_db(), result.options.assumed),
