@@ -10,6 +10,7 @@ pub mod audio;
 pub mod editor;
 pub mod look;
 pub mod params;
+pub mod picture;
 pub mod player;
 pub mod scan;
 pub mod wav;

@@ -5,7 +5,9 @@
 //! 3 a `--fail-on` threshold was met.
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
+use fieldglass::picture::load_picture;
 use fieldglass::scan::demo::{DemoOptions, write_demo};
+use fieldglass::scan::report_html::ReportPicture;
 use fieldglass::scan::{
     AssumedSource, CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, batch, index, json, report_html,
     scan, summary,
@@ -223,6 +225,29 @@ struct ScanArgs {
     /// Exit with code 3 if any finding is at least this severe.
     #[arg(long, value_enum)]
     fail_on: Option<FailOn>,
+    /// A still of the video (PNG or JPEG, equirectangular 2:1) behind the report's maps.
+    #[arg(long, value_name = "FILE", requires = "report")]
+    picture: Option<PathBuf>,
+    /// How much of the picture shows through the maps, 0 (maps only) … 1 (picture only).
+    #[arg(long, value_name = "0…1", default_value_t = 0.5, requires = "picture", value_parser = parse_opacity)]
+    picture_opacity: f64,
+    /// Azimuth the picture's centre is turned to, degrees (positive = to the left).
+    #[arg(long, value_name = "DEG", default_value_t = 0.0, requires = "picture", allow_negative_numbers = true, value_parser = parse_yaw)]
+    picture_yaw: f64,
+}
+
+fn parse_opacity(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if (0.0..=1.0).contains(&v) => Ok(v),
+        _ => Err(format!("'{text}' is not an opacity from 0 to 1")),
+    }
+}
+
+fn parse_yaw(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v.abs() <= 360.0 => Ok(v),
+        _ => Err(format!("'{text}' is not an angle from -360 to 360 degrees")),
+    }
 }
 
 #[derive(Args, Debug)]
@@ -326,15 +351,30 @@ fn fail_on_severity(fail_on: Option<FailOn>) -> Option<Severity> {
 }
 
 fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
+    // A missing or broken picture stops the command before the scan starts.
+    let picture = match &args.picture {
+        Some(path) => Some(ReportPicture {
+            name: path.display().to_string(),
+            picture: load_picture(path, report_html::PICTURE_MAX_SIDE)
+                .map_err(|e| CliError::input(e.to_string()))?,
+            yaw_deg: args.picture_yaw,
+            opacity: args.picture_opacity,
+        }),
+        None => None,
+    };
     let single = match args.inputs.as_slice() {
         [one] if !one.is_dir() && args.json_lines.is_none() => Some(one.clone()),
         _ => None,
     };
     if !args.demo && single.is_none() {
         if args.json.is_some() {
-            return Err(CliError::input(
-                "--json takes one input; for several files or a folder use --json-lines",
-            ));
+            let what = match args.inputs.as_slice() {
+                [one] => format!("'{}' is a folder", one.display()),
+                many => format!("{} inputs were given", many.len()),
+            };
+            return Err(CliError::input(format!(
+                "{what}: --json takes one file; for several files or a folder use --json-lines"
+            )));
         }
         let (files, errors) = batch::collect_inputs(&args.inputs);
         if files.is_empty() && errors.is_empty() {
@@ -351,6 +391,7 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
             json_lines: args.json_lines.clone(),
             report: args.report.clone(),
             fail_on: fail_on_severity(args.fail_on),
+            picture,
         };
         return Ok(ExitCode::from(batch::run_batch(&files, errors, &options)));
     }
@@ -388,7 +429,7 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         }
     }
     let report = match &args.report {
-        Some(dir) => Some(report_html::write_report(&result, dir)?),
+        Some(dir) => Some(report_html::write_report(&result, dir, picture.as_ref())?),
         None => None,
     };
     if !json_to_stdout {

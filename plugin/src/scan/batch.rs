@@ -5,6 +5,7 @@
 
 use super::index::{IndexRow, report_folder_name, write_index};
 use super::progress::Progress;
+use super::report_html::ReportPicture;
 use super::{
     CliError, EXIT_FAIL_ON, EXIT_OUTPUT, EXIT_USAGE_OR_INPUT, ScanInput, ScanOptions, json,
     report_html, scan_observed,
@@ -31,6 +32,8 @@ pub struct BatchOptions {
     pub report: Option<PathBuf>,
     /// `--fail-on`: exit 3 when any file has a finding at least this severe.
     pub fail_on: Option<Severity>,
+    /// The still behind every report's maps (`--picture`).
+    pub picture: Option<ReportPicture>,
 }
 
 /// The files named, with folders searched recursively (sorted, so that runs are repeatable),
@@ -229,7 +232,7 @@ fn scan_one(
     }
     if let Some(dir) = &options.report {
         let folder = dir.join(report_folder_name(&shown));
-        if let Err(e) = report_html::write_report(&result, &folder) {
+        if let Err(e) = report_html::write_report(&result, &folder, options.picture.as_ref()) {
             message.push_str(&format!("; {e}"));
             code = EXIT_OUTPUT;
         }

@@ -1,14 +1,20 @@
-//! `--report DIR`: one self-contained `report.html` (pictures embedded as base64 data URIs, no
-//! external resources, opens offline) plus the same pictures as PNG files and the JSON twin.
+//! `--report DIR`: one self-contained `report.html` plus the same pictures as PNG files and the
+//! JSON twin. The report's pictures are inline SVG: axes, labels and legends are text the
+//! browser draws (selectable, any case); only the heat map itself is a raster, embedded as a
+//! PNG data URI inside the SVG. No external resources: it opens offline.
 
 use super::CliError;
-use super::charts::{map_chart, order_balance_chart, timeline_chart};
+use super::charts::{
+    Backdrop, Drawing, MAP_WIDTH, MapLayers, map_drawing, order_balance_drawing, timeline_drawing,
+};
 use super::json::to_json_string;
-use super::run::{ChannelSummary, ScanResult, expected_balance_db};
+use super::run::{BandResult, ChannelSummary, ScanResult, expected_balance_db};
 use super::summary::format_verdict;
-use base64::Engine as _;
-use fieldglass_dsp::engine::{Band, Severity};
+use crate::picture::Picture;
+use fieldglass_dsp::beam::default_map_range_db;
+use fieldglass_dsp::engine::{Band, MapMethod, Severity};
 use fieldglass_dsp::format::Normalization;
+use fieldglass_dsp::wording;
 use std::fmt::Write;
 use std::path::{Path, PathBuf};
 
@@ -21,6 +27,28 @@ pub const ORDER_BALANCE_FILE: &str = "order-balance.png";
 /// File name of the map picture of `band`.
 pub fn map_file(band: Band) -> String {
     format!("map-{}.png", band.label())
+}
+
+/// Colour-scale range of the report's maps, dB below each map's maximum: the editor's default
+/// for the same method and order.
+pub fn map_range_db(method: MapMethod, order: usize) -> f64 {
+    default_map_range_db(method, order)
+}
+
+/// Longest side a picture is shrunk to for the report (twice the map's width: enough for its
+/// 720 × 360 pixels).
+pub const PICTURE_MAX_SIDE: usize = 2 * MAP_WIDTH;
+
+/// A picture behind the report's maps, with the editor's meaning of yaw and opacity.
+#[derive(Clone, Debug)]
+pub struct ReportPicture {
+    /// How the picture is named in the report (its path as given).
+    pub name: String,
+    pub picture: Picture,
+    /// Azimuth the picture's centre is turned to, degrees.
+    pub yaw_deg: f64,
+    /// 0 (maps only) … 1 (picture only).
+    pub opacity: f64,
 }
 
 const STYLE: &str = r#"
@@ -37,7 +65,7 @@ p { margin: 6px 0; }
 .card .label { font-size: 12px; text-transform: uppercase; letter-spacing: .06em; color: #8a9099; }
 .card .value { font-size: 18px; color: #e4e6ea; }
 .caution { background: #1b1e23; border-left: 3px solid #8a7a4a; padding: 8px 14px; margin-top: 16px; font-size: 13px; color: #a9aeb6; }
-img { display: block; max-width: 100%; height: auto; border-radius: 4px; }
+svg { display: block; max-width: 100%; height: auto; }
 figure { margin: 8px 0 4px; }
 figcaption { font-size: 13px; color: #8a9099; margin-top: 4px; }
 table { border-collapse: collapse; font-size: 13px; margin: 6px 0; }
@@ -83,32 +111,34 @@ fn fmt_level(value: f64, decimals: usize) -> String {
     fmt_db(Some(value), decimals)
 }
 
-fn data_uri(png: &[u8]) -> String {
-    format!(
-        "data:image/png;base64,{}",
-        base64::engine::general_purpose::STANDARD.encode(png)
-    )
-}
-
 fn write_file(path: &Path, bytes: &[u8]) -> Result<(), CliError> {
     std::fs::write(path, bytes)
         .map_err(|e| CliError::output(format!("cannot write '{}': {e}", path.display())))
 }
 
-/// A picture: written as a file and returned as an `<img>` element with a data URI.
-fn picture(
-    dir: &Path,
-    file: &str,
-    png: Result<Vec<u8>, String>,
-    alt: &str,
-) -> Result<String, CliError> {
-    let png = png.map_err(|e| CliError::output(format!("cannot encode '{file}': {e}")))?;
-    write_file(&dir.join(file), &png)?;
-    Ok(format!(
-        "<img src=\"{}\" alt=\"{}\">",
-        data_uri(&png),
-        escape(alt)
-    ))
+/// A picture: written as a PNG file and returned as inline SVG.
+fn figure(dir: &Path, file: &str, drawing: &Drawing) -> Result<String, CliError> {
+    let cannot = |e: String| CliError::output(format!("cannot draw '{file}': {e}"));
+    write_file(&dir.join(file), &drawing.to_png().map_err(cannot)?)?;
+    drawing.to_svg().map_err(cannot)
+}
+
+/// The map layers of one band's whole-programme map.
+fn band_layers<'a>(
+    band: &'a BandResult,
+    sources: &'a [(f64, f64, f64)],
+    range_db: f64,
+    backdrop: Option<Backdrop<'a>>,
+) -> MapLayers<'a> {
+    MapLayers {
+        map_db: &band.map.values_db,
+        width: band.map.width,
+        height: band.map.height,
+        range_db,
+        view_yaw_deg: 0.0,
+        sources,
+        backdrop,
+    }
 }
 
 fn band_title(band: Band, range_hz: [f64; 2]) -> String {
@@ -130,7 +160,7 @@ fn channel_flags(c: &ChannelSummary) -> String {
         flags.push("NaN/Inf");
     }
     if c.over_omni {
-        flags.push("over W");
+        flags.push(wording::LOUDER_THAN_W);
     }
     if c.silent {
         flags.push("silent");
@@ -174,14 +204,17 @@ fn sources_table(out: &mut String, sources: &[fieldglass_dsp::engine::SourceRead
         out.push_str("<p class=\"muted\">No source found.</p>\n");
         return;
     }
-    out.push_str("<table><tr><th>#</th><th>Azimuth</th><th>Elevation</th><th>Level</th></tr>\n");
+    out.push_str("<table><tr><th>#</th><th class=\"left\">Direction</th><th>Level</th></tr>\n");
     for (i, s) in sources.iter().enumerate() {
         let _ = writeln!(
             out,
-            "<tr><td>{}</td><td>{}°</td><td>{}°</td><td>{} dB</td></tr>",
+            "<tr><td>{}</td><td class=\"left\">{}</td><td>{} dB</td></tr>",
             i + 1,
-            fmt_level(s.direction.azimuth_deg, 1),
-            fmt_level(s.direction.elevation_deg, 1),
+            escape(&wording::direction(
+                s.direction.azimuth_deg,
+                s.direction.elevation_deg
+            ))
+            .replace('-', "−"),
             fmt_level(s.level_db, 1)
         );
     }
@@ -189,21 +222,30 @@ fn sources_table(out: &mut String, sources: &[fieldglass_dsp::engine::SourceRead
 }
 
 /// Writes the report into `dir` (created if needed); returns the path of `report.html`.
-pub fn write_report(result: &ScanResult, dir: &Path) -> Result<PathBuf, CliError> {
+/// `picture`, if any, is shown behind every map.
+pub fn write_report(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<PathBuf, CliError> {
     std::fs::create_dir_all(dir).map_err(|e| {
         CliError::output(format!(
             "cannot create the report directory '{}': {e}",
             dir.display()
         ))
     })?;
-    let html = build_html(result, dir)?;
+    let html = build_html(result, dir, picture)?;
     let path = dir.join(REPORT_FILE);
     write_file(&path, html.as_bytes())?;
     write_file(&dir.join(JSON_FILE), to_json_string(result).as_bytes())?;
     Ok(path)
 }
 
-fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
+fn build_html(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<String, CliError> {
     let input = &result.input;
     let snap = &result.snapshot;
     let omni = &snap.programme.omni;
@@ -297,25 +339,28 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         &format!("{} in all", result.findings.len()),
     );
     h.push_str("</div>\n");
-    h.push_str(
-        "<div class=\"caution\">Monitoring loud material can damage hearing: keep the listening level moderate. \
-         These meters do not replace a calibrated monitoring chain. Loudness and peak limits for a delivery are \
-         set by its specification and by local regulations — this tool reports, it does not certify.</div>\n",
+    let _ = writeln!(
+        h,
+        "<div class=\"caution\">{}</div>",
+        escape(wording::CAUTION)
     );
 
     // Findings.
     h.push_str("<h2>Findings</h2>\n");
     if result.findings.is_empty() {
-        h.push_str("<p>None: no clipping, invalid samples, over-omni, silent or duplicated channels, order deficit, format mismatch or DC offset found.</p>\n");
+        let _ = writeln!(
+            h,
+            "<p>None: no clipping, invalid samples, channel {}, silent or duplicated channels, order deficit, format mismatch or DC offset found.</p>",
+            wording::LOUDER_THAN_W
+        );
     } else {
         h.push_str("<ul class=\"findings\">\n");
         for f in &result.findings {
             let _ = writeln!(
                 h,
-                "<li><span class=\"sev {}\">{}</span> <code>{}</code> — {}</li>",
+                "<li><span class=\"sev {}\">{}</span> {}</li>",
                 f.severity.label(),
                 f.severity.label(),
-                f.code.label(),
                 escape(&f.message)
             );
         }
@@ -323,23 +368,52 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     }
 
     // Maps.
-    h.push_str("<h2>Sphere: whole-programme maps</h2>\n");
+    let range_db = map_range_db(result.options.method, result.layout.order);
+    let _ = writeln!(h, "<h2>Sphere: {} maps</h2>", wording::WHOLE_PROGRAMME);
     let _ = writeln!(
         h,
-        "<p class=\"muted\">{} map of the whole programme, in dB below its strongest point (colour scale on the right; \
-         dark = quiet). Equirectangular, as seen from the listening position: front in the centre, left (+90°) \
-         left of centre, up at the top; azimuth runs from +180° at the left edge to −180° at the right. \
+        "<p class=\"muted\">{} map of the {}, in dB below its strongest point over {range_db:.0} dB (colour scale on the right; \
+         dark = quiet), grid every {:.0}°. Equirectangular, as seen from the listening position: {} in the centre, {} (+90°) \
+         left of centre, {} at the top; azimuth runs from +180° at the left edge to −180° at the right. \
          Numbered rings mark the strongest directions.</p>",
-        escape(result.options.method.human_name())
+        escape(result.options.method.human_name()),
+        wording::WHOLE_PROGRAMME,
+        wording::GRID_STEP_DEG,
+        wording::FRONT,
+        wording::LEFT,
+        wording::UP,
     );
+    if let Some(p) = picture {
+        let _ = writeln!(
+            h,
+            "<p class=\"muted\">Behind the maps: <code>{}</code> at {:.0} % opacity, its centre turned to azimuth {}°.</p>",
+            escape(&p.name),
+            100.0 * p.opacity,
+            wording::degrees(p.yaw_deg).replace('-', "−")
+        );
+    }
     for band in &result.bands {
-        let _ = writeln!(h, "<h3>{}</h3>", band_title(band.band, band.range_hz));
-        let img = picture(
-            dir,
-            &map_file(band.band),
-            map_chart(band).to_png(),
-            &band_title(band.band, band.range_hz),
-        )?;
+        let title = band_title(band.band, band.range_hz);
+        let _ = writeln!(h, "<h3>{title}</h3>");
+        let sources: Vec<(f64, f64, f64)> = band
+            .sources
+            .iter()
+            .map(|s| {
+                (
+                    s.direction.azimuth_deg,
+                    s.direction.elevation_deg,
+                    s.level_db,
+                )
+            })
+            .collect();
+        let sample = |az: f64, el: f64| picture.map_or([0; 4], |p| p.picture.sample(az, el));
+        let backdrop = picture.map(|p| Backdrop {
+            sample: &sample,
+            yaw_deg: p.yaw_deg,
+            opacity: p.opacity,
+        });
+        let drawing = map_drawing(&band_layers(band, &sources, range_db, backdrop), &title);
+        let img = figure(dir, &map_file(band.band), &drawing)?;
         let _ = writeln!(
             h,
             "<figure>{img}<figcaption>Diffuseness {} · W level in band {} dBFS</figcaption></figure>",
@@ -358,11 +432,10 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         escape(result.options.method.human_name()),
         1.0 / super::run::TIMELINE_RATE_HZ
     );
-    let img = picture(
+    let img = figure(
         dir,
         TIMELINE_FILE,
-        timeline_chart(&result.timeline, input.duration_s()).to_png(),
-        "azimuth and elevation of the strongest direction against time",
+        &timeline_drawing(&result.timeline, input.duration_s()),
     )?;
     let _ = writeln!(h, "<figure>{img}</figure>");
 
@@ -372,13 +445,13 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     if !check.hypotheses.is_empty() {
         let mut hyps = check.hypotheses.clone();
         hyps.sort_by(|a, b| b.probability.total_cmp(&a.probability));
-        h.push_str("<table><tr><th class=\"left\">Hypothesis</th><th>Probability</th><th>Steering fit</th></tr>\n");
+        h.push_str("<table><tr><th class=\"left\">Hypothesis</th><th>Likely</th><th>Steering fit</th></tr>\n");
         for hy in &hyps {
             let _ = writeln!(
                 h,
-                "<tr><td class=\"left\">{}</td><td>{:.1} %</td><td>{:.3}</td></tr>",
+                "<tr><td class=\"left\">{}</td><td>{}</td><td>{:.3}</td></tr>",
                 escape(hy.format.human_name()),
-                100.0 * hy.probability,
+                escape(&wording::likelihood(hy.probability)),
                 hy.steering_fit
             );
         }
@@ -387,13 +460,12 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     h.push_str(
         "<p class=\"muted\">Energy per order relative to W, read under the assumed format. For an incoherent \
          field each order carries as much energy as W in SN3D (0 dB); N3D content shows 10·log10(2n+1) dB; \
-         FuMa content about +3 dB at first order (W at −3 dB). The marks show what each would read as here.</p>\n",
+         FuMa content about +3 dB at first order (W at −3 dB). The short ticks show what each would read as here.</p>\n",
     );
-    let img = picture(
+    let img = figure(
         dir,
         ORDER_BALANCE_FILE,
-        order_balance_chart(result.order_balance_db(), result.options.assumed).to_png(),
-        "order balance",
+        &order_balance_drawing(result.order_balance_db(), result.options.assumed),
     )?;
     let _ = writeln!(h, "<figure>{img}</figure>");
     let assumed_norm = result.options.assumed.normalization;

@@ -8,12 +8,14 @@ use super::CliError;
 use super::progress::Progress;
 use crate::adm::{self, AdmDeclaration};
 use crate::wav::{Container, SampleFormat, WavReader};
-use fieldglass_dsp::engine::findings::MISMATCH_CONFIDENCE;
+use fieldglass_dsp::engine::findings::{
+    ChannelFacts, FindingInputs, MISMATCH_CONFIDENCE, collect_findings,
+};
 use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
 };
-use fieldglass_dsp::engine::{FindingCode, Severity};
+use fieldglass_dsp::engine::{FindingCode, FormatCheck, Severity};
 use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander, Normalization};
 use fieldglass_dsp::meters::FullScale;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
@@ -137,11 +139,11 @@ impl InputInfo {
         self.frames as f64 / self.sample_rate_hz
     }
 
-    /// Path for messages, or "demo scene".
+    /// Path for messages, or the demo scene's name.
     pub fn display_name(&self) -> String {
         match &self.path {
             Some(p) => p.display().to_string(),
-            None => "demo scene".to_string(),
+            None => wording::DEMO_SCENE.to_string(),
         }
     }
 }
@@ -392,7 +394,8 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
             let info = InputInfo {
                 path: None,
                 description: format!(
-                    "demo scene (harbour-front terrace at dusk), order {order}, {}, {sample_rate_hz} Hz",
+                    "{}, order {order}, {}, {sample_rate_hz} Hz",
+                    wording::DEMO_SCENE,
                     format.human_name()
                 ),
                 channels: scene.channels(),
@@ -522,11 +525,21 @@ pub fn scan_observed(
     let programme = &snapshot.programme;
     let mut channels = programme.channels.clone();
     let mut findings = programme.findings.clone();
+    let finding_context = FindingContext {
+        format_check: &programme.format_check,
+        order: layout.order,
+        assumed: options.assumed,
+        settings: analyzer.settings(),
+    };
     if let Some(e) = &expander {
-        to_file_channels(|c| e.source_channel(c), &mut channels, &mut findings);
+        let source_channel = |c| e.source_channel(c);
+        to_file_channels(source_channel, &mut channels);
+        findings = file_channel_findings(source_channel, &channels, &finding_context);
     }
     if let Some(route) = &info.route {
-        to_file_channels(|c| route.get(c).copied(), &mut channels, &mut findings);
+        let source_channel = |c: usize| route.get(c).copied();
+        to_file_channels(source_channel, &mut channels);
+        findings = file_channel_findings(source_channel, &channels, &finding_context);
     }
     metadata_findings(&info, &options, &snapshot, &mut findings);
     for warning in &info.warnings {
@@ -623,12 +636,12 @@ pub fn expected_balance_db(
         .collect()
 }
 
-/// Channel figures and findings of an expanded mixed-order stream, back in file channels: the
-/// absent components have no row, and findings name file channels.
+/// Channel figures of an expanded mixed-order stream or of routed tracks, back in file
+/// channels (`source_channel` maps an analysed channel to its file channel): the absent
+/// components have no row.
 fn to_file_channels(
     source_channel: impl Fn(usize) -> Option<usize>,
     channels: &mut Vec<ChannelSummary>,
-    findings: &mut [Finding],
 ) {
     channels.retain_mut(|c| match source_channel(c.input_index) {
         Some(file_channel) => {
@@ -638,13 +651,48 @@ fn to_file_channels(
         None => false,
     });
     channels.sort_by_key(|c| c.input_index);
-    for f in findings.iter_mut() {
-        f.channels = f
-            .channels
+}
+
+/// What the finding rules need besides the channels.
+struct FindingContext<'a> {
+    format_check: &'a FormatCheck,
+    order: usize,
+    assumed: AmbiFormat,
+    settings: &'a AnalysisSettings,
+}
+
+/// The engine's finding rules run again on file channels, so that both the indices and the
+/// messages ("channel 4 (ACN 8)") name the channels of the file rather than those of the
+/// expanded full-order layout. `channels` are already in file channels.
+fn file_channel_findings(
+    source_channel: impl Fn(usize) -> Option<usize>,
+    channels: &[ChannelSummary],
+    context: &FindingContext,
+) -> Vec<Finding> {
+    let to_file =
+        |list: &[usize]| -> Vec<usize> { list.iter().filter_map(|&c| source_channel(c)).collect() };
+    let check = context.format_check;
+    let file_check = FormatCheck {
+        silent_channels: to_file(&check.silent_channels),
+        silent_by_geometry: to_file(&check.silent_by_geometry),
+        duplicate_channels: check
+            .duplicate_channels
             .iter()
-            .filter_map(|&c| source_channel(c))
-            .collect();
-    }
+            .filter_map(|&(a, b)| Some((source_channel(a)?, source_channel(b)?)))
+            .collect(),
+        ..check.clone()
+    };
+    let facts: Vec<ChannelFacts> = channels.iter().map(Into::into).collect();
+    collect_findings(
+        &FindingInputs {
+            channels: &facts,
+            format_check: &file_check,
+            order: context.order,
+            assumed_format: context.assumed,
+            whole_programme: true,
+        },
+        context.settings,
+    )
 }
 
 /// What the file's ADM metadata adds to the findings: a declaration the signal contradicts
