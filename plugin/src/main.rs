@@ -382,12 +382,18 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
                 "no file to scan: the folders hold no .wav, .amb, .rf64 or .bw64 files",
             ));
         }
+        let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+        let jobs = args
+            .jobs
+            .map_or(cores, |j| j as usize)
+            .min(files.len().max(1));
         let options = batch::BatchOptions {
-            scan: scan_options(&args),
-            jobs: args.jobs.map_or_else(
-                || std::thread::available_parallelism().map_or(1, |n| n.get()),
-                |j| j as usize,
-            ),
+            // A second thread per file only while cores are left over.
+            scan: ScanOptions {
+                split_levels: jobs < cores,
+                ..scan_options(&args)
+            },
+            jobs,
             json_lines: args.json_lines.clone(),
             report: args.report.clone(),
             fail_on: fail_on_severity(args.fail_on),

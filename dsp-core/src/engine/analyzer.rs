@@ -107,6 +107,28 @@ pub struct Analyzer {
     format_not_applied: Option<String>,
     /// Input channels known to be absent (zero-filled components of a mixed-order set).
     absent_channels: Vec<usize>,
+    /// Run the level side on a second thread ([`Analyzer::set_split_levels`]).
+    split_levels: bool,
+}
+
+/// W after conversion to SN3D into `w_scratch`, then into the loudness meter.
+fn measure_w(
+    conversion: &ConversionPlan,
+    loudness: &mut LoudnessMeter,
+    w_scratch: &mut Vec<f32>,
+    block: &[&[f32]],
+    frames: usize,
+) {
+    let source = conversion.source_channel(0);
+    let gain = conversion.gain(0) as f32;
+    let Some(w) = block.get(source) else { return };
+    if w_scratch.len() < frames {
+        w_scratch.resize(frames, 0.0);
+    }
+    for (d, &x) in w_scratch[..frames].iter_mut().zip(w.iter()) {
+        *d = x * gain;
+    }
+    loudness.push(&w_scratch[..frames]);
 }
 
 impl Analyzer {
@@ -170,6 +192,7 @@ impl Analyzer {
             load_audio_s: 0.0,
             format_not_applied: None,
             absent_channels: Vec::new(),
+            split_levels: false,
         })
     }
 
@@ -279,6 +302,14 @@ impl Analyzer {
         self.frames_since_check = usize::MAX / 2;
     }
 
+    /// Runs the level side of each block (meters with true peak, W loudness) on a second
+    /// thread beside the spatial side (off by default: the plugin's analysis thread stays one
+    /// thread; the scanner uses both cores). The results are identical either way: the two
+    /// sides share no state.
+    pub fn set_split_levels(&mut self, split: bool) {
+        self.split_levels = split;
+    }
+
     pub fn reset_clips(&mut self) {
         self.meters.reset_clips();
         self.meters.reset_holds();
@@ -292,13 +323,23 @@ impl Analyzer {
         if frames == 0 {
             return false;
         }
-        self.meters.push(block);
         self.programme_frames += frames as u64;
-        self.measure_w(block, frames);
-
         let m = self.layout.spatial_channels;
         let alpha = self.integration_factor();
         let hold = self.settings.hold;
+        // Level side (meters with true peak, W loudness) and spatial side (STFT, covariance,
+        // DirAC) read the same block and write disjoint state, so they may run at once.
+        let (meters, loudness, w_scratch, conversion) = (
+            &mut self.meters,
+            &mut self.loudness,
+            &mut self.w_scratch,
+            &self.conversion,
+        );
+        let mut levels = move || {
+            meters.push(block);
+            measure_w(conversion, loudness, w_scratch, block, frames);
+        };
+        let split = self.split_levels;
         let (live, integrated, count, diffuseness) = (
             &mut self.live,
             &mut self.integrated,
@@ -306,22 +347,37 @@ impl Analyzer {
             &mut self.diffuseness,
         );
         let conversion = &self.conversion;
-        self.covariance.push(&block[..m.min(block.len())], |bands| {
-            for (b, frame) in bands.iter().enumerate() {
-                if !hold {
-                    for (l, &f) in live[b].iter_mut().zip(frame) {
-                        *l = alpha * *l + (1.0 - alpha) * f;
+        let covariance = &mut self.covariance;
+        let mut spatial = move || {
+            covariance.push(&block[..m.min(block.len())], |bands| {
+                for (b, frame) in bands.iter().enumerate() {
+                    if !hold {
+                        for (l, &f) in live[b].iter_mut().zip(frame) {
+                            *l = alpha * *l + (1.0 - alpha) * f;
+                        }
+                    }
+                    for (s, &f) in integrated[b].iter_mut().zip(frame) {
+                        *s += f;
+                    }
+                    count[b] += 1;
+                    if m >= 4 {
+                        diffuseness.push(b, &raw_first_order_moments(frame, m, conversion));
                     }
                 }
-                for (s, &f) in integrated[b].iter_mut().zip(frame) {
-                    *s += f;
+            })
+        };
+        if split {
+            std::thread::scope(|scope| {
+                let level_side = scope.spawn(levels);
+                spatial();
+                if let Err(panic) = level_side.join() {
+                    std::panic::resume_unwind(panic);
                 }
-                count[b] += 1;
-                if m >= 4 {
-                    diffuseness.push(b, &raw_first_order_moments(frame, m, conversion));
-                }
-            }
-        });
+            });
+        } else {
+            levels();
+            spatial();
+        }
 
         self.time_s += frames as f64 / self.setup.sample_rate_hz;
         self.frames_since_map += frames;
@@ -366,19 +422,6 @@ impl Analyzer {
         let hop = self.covariance.framing().hop as f64;
         let tau_s = self.settings.time_constant_ms.max(1.0) / 1000.0;
         (-hop / (tau_s * self.setup.sample_rate_hz)).exp()
-    }
-
-    fn measure_w(&mut self, block: &[&[f32]], frames: usize) {
-        let source = self.conversion.source_channel(0);
-        let gain = self.conversion.gain(0) as f32;
-        let Some(w) = block.get(source) else { return };
-        if self.w_scratch.len() < frames {
-            self.w_scratch.resize(frames, 0.0);
-        }
-        for (d, &x) in self.w_scratch[..frames].iter_mut().zip(w.iter()) {
-            *d = x * gain;
-        }
-        self.loudness.push(&self.w_scratch[..frames]);
     }
 
     /// 1 / frames in the whole-programme accumulator of `band` (0 before the first frame).

@@ -65,6 +65,9 @@ pub struct ScanOptions {
     pub over_omni_tolerance_db: f64,
     /// Show a progress bar on stderr (only if stderr is a terminal and the input is long).
     pub progress: bool,
+    /// Run the level meters on a second thread beside the spatial analysis (identical
+    /// results; off when a batch already keeps every core busy with other files).
+    pub split_levels: bool,
 }
 
 impl Default for ScanOptions {
@@ -77,6 +80,7 @@ impl Default for ScanOptions {
             band_edges_hz: engine.band_edges_hz,
             over_omni_tolerance_db: engine.over_omni_tolerance_db,
             progress: false,
+            split_levels: true,
         }
     }
 }
@@ -487,6 +491,7 @@ pub fn scan_observed(
         analyzer.set_absent_channels(e.absent_channels());
     }
     analyzer.reserve_block(BLOCK_FRAMES);
+    analyzer.set_split_levels(options.split_levels);
 
     let mut progress = progress(&info);
     let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); analysed_channels];
