@@ -1028,11 +1028,12 @@ fn png_pixel(path: &Path, x: usize, y: usize) -> [u8; 3] {
     [buf[i], buf[i + 1], buf[i + 2]]
 }
 
-/// Pixel of the report's map picture at a direction: the map area starts at (76, 12) and has
-/// 2 pixels per degree, azimuth +180° at its left edge (the layout of `charts::map_drawing`).
+/// Pixel of the report's map picture at a direction: 2 pixels per degree, azimuth +180° at the
+/// left edge of the map area (the layout of `charts::map_drawing`).
 fn map_pixel(path: &Path, azimuth_deg: f64, elevation_deg: f64) -> [u8; 3] {
-    let x = 76.0 + (180.0 - azimuth_deg) * 2.0;
-    let y = 12.0 + (90.0 - elevation_deg) * 2.0;
+    use fieldglass::scan::charts::{MAP_LEFT, MAP_TOP};
+    let x = MAP_LEFT + (180.0 - azimuth_deg) * 2.0;
+    let y = MAP_TOP + (90.0 - elevation_deg) * 2.0;
     png_pixel(path, x as usize, y as usize)
 }
 

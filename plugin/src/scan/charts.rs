@@ -20,6 +20,13 @@ use std::fmt::Write;
 /// Map picture size in pixels (2 px per degree).
 pub const MAP_WIDTH: usize = 720;
 pub const MAP_HEIGHT: usize = 360;
+/// Where the map area starts in the map picture, pixels from the left and the top (room for
+/// the elevation labels in any browser's sans-serif).
+pub const MAP_LEFT: f64 = 92.0;
+pub const MAP_TOP: f64 = 12.0;
+/// Text widths are measured in egui's font; a browser's sans-serif may run this much wider,
+/// so layouts that place text after text leave this much room.
+const BROWSER_TEXT_SLACK: f64 = 1.3;
 /// Size of label text and of small print, pixels.
 const LABEL_PX: f64 = 13.0;
 const SMALL_PX: f64 = 12.0;
@@ -654,7 +661,7 @@ fn scale_step_db(range_db: f64) -> f64 {
 /// The map drawing: heat map, 30° grid with degrees and direction words, numbered source
 /// markers, colour scale.
 pub fn map_drawing(layers: &MapLayers, title: &str) -> Drawing {
-    let (x0, y0) = (76.0, 12.0);
+    let (x0, y0) = (MAP_LEFT, MAP_TOP);
     let (mw, mh) = (MAP_WIDTH as f64, MAP_HEIGHT as f64);
     let bar_x = x0 + mw + 24.0;
     let mut d = Drawing::new(bar_x + 16.0 + 48.0, y0 + mh + 46.0, title);
@@ -740,8 +747,15 @@ pub fn map_drawing(layers: &MapLayers, title: &str) -> Drawing {
     });
     let range = layers.range_db.max(1.0);
     let tick = scale_step_db(range);
-    let mut db = 0.0;
-    while db <= range + 1e-6 {
+    let mut marks: Vec<f64> = (0..)
+        .map(|k| k as f64 * tick)
+        .take_while(|db| *db <= range + 1e-6)
+        .collect();
+    // The floor is always labelled, unless a tick already sits close to it.
+    if marks.last().is_some_and(|last| range - last > tick / 2.0) {
+        marks.push(range);
+    }
+    for db in marks {
         let y = y0 + db / range * mh;
         d.line((bar_x + 14.0, y), (bar_x + 18.0, y), look::TEXT, 1.0, 1.0);
         d.text(
@@ -751,7 +765,6 @@ pub fn map_drawing(layers: &MapLayers, title: &str) -> Drawing {
             look::TEXT_DIM,
             Anchor::Start,
         );
-        db += tick;
     }
     d.text(bar_x, y0 + mh + 16.0, "dB", look::TEXT_DIM, Anchor::Start);
     d
@@ -850,7 +863,7 @@ fn time_label(t_s: f64, duration_s: f64) -> String {
 /// Azimuth and elevation of the strongest direction against time. Dot brightness follows W's
 /// level at that moment (quiet moments are dim).
 pub fn timeline_drawing(points: &[TimelinePoint], duration_s: f64) -> Drawing {
-    let (x0, w) = (76.0, MAP_WIDTH as f64);
+    let (x0, w) = (MAP_LEFT, MAP_WIDTH as f64);
     let (az_y, az_h) = (26.0, 200.0);
     let (el_y, el_h) = (az_y + az_h + 36.0, 110.0);
     let mut d = Drawing::new(
@@ -964,7 +977,7 @@ pub fn order_balance_drawing(balance_db: &[f64], assumed: AmbiFormat) -> Drawing
     let order = balance_db.len().saturating_sub(1).max(1);
     let (x0, y0, w, h) = (64.0, 40.0, 520.0, 230.0);
     let mut d = Drawing::new(
-        x0 + w + 20.0,
+        x0 + w + 60.0,
         y0 + h + 44.0,
         "energy per order relative to W",
     );
@@ -1067,10 +1080,11 @@ pub fn order_balance_drawing(balance_db: &[f64], assumed: AmbiFormat) -> Drawing
     let mut lx = x0 + 110.0;
     d.rect(lx, legend_y - 8.0, 14.0, 8.0, bar_colour, 1.0);
     d.text(lx + 18.0, legend_y, "measured", look::TEXT, Anchor::Start);
-    lx += 18.0 + font::text_width("measured", LABEL_PX as f32) + 18.0;
+    let room = |text: &str, size: f64| font::text_width(text, size as f32) * BROWSER_TEXT_SLACK;
+    lx += 18.0 + room("measured", LABEL_PX) + 14.0;
     let lead = "expected if stored as:";
     d.text_sized(lx, legend_y, lead, SMALL_PX, look::TEXT_DIM, Anchor::Start);
-    lx += font::text_width(lead, SMALL_PX as f32) + 10.0;
+    lx += room(lead, SMALL_PX) + 8.0;
     for &(name, _, colour) in &marks {
         d.line(
             (lx, legend_y - 4.0),
@@ -1080,7 +1094,7 @@ pub fn order_balance_drawing(balance_db: &[f64], assumed: AmbiFormat) -> Drawing
             1.0,
         );
         d.text(lx + 20.0, legend_y, name, look::TEXT, Anchor::Start);
-        lx += 20.0 + font::text_width(name, LABEL_PX as f32) + 16.0;
+        lx += 20.0 + room(name, LABEL_PX) + 12.0;
     }
     d
 }

@@ -10,6 +10,7 @@ use super::charts::{
 use super::json::to_json_string;
 use super::run::{BandResult, ChannelSummary, ScanResult, expected_balance_db};
 use super::summary::format_verdict;
+use crate::look;
 use crate::picture::Picture;
 use fieldglass_dsp::beam::default_map_range_db;
 use fieldglass_dsp::engine::{Band, MapMethod, Severity};
@@ -53,36 +54,52 @@ pub struct ReportPicture {
 
 const STYLE: &str = r#"
 :root { color-scheme: dark; }
-body { background: #111317; color: #c4c8cf; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0; }
+body { background: {BACKGROUND}; color: {TEXT}; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0; }
 main { max-width: 1080px; margin: 0 auto; padding: 24px 28px 48px; }
 h1 { font-size: 22px; font-weight: 600; color: #e4e6ea; margin: 0 0 4px; }
 h2 { font-size: 17px; font-weight: 600; color: #e4e6ea; margin: 32px 0 10px; border-bottom: 1px solid #2a2e35; padding-bottom: 4px; }
 h3 { font-size: 15px; font-weight: 600; color: #d4d7dc; margin: 20px 0 6px; }
 p { margin: 6px 0; }
-.muted { color: #8a9099; }
+.muted { color: {TEXT_DIM}; }
 .cards { display: grid; grid-template-columns: repeat(auto-fit, minmax(240px, 1fr)); gap: 12px; margin-top: 16px; }
-.card { background: #1b1e23; border: 1px solid #262a31; border-radius: 6px; padding: 10px 14px; }
-.card .label { font-size: 12px; text-transform: uppercase; letter-spacing: .06em; color: #8a9099; }
+.card { background: {PANEL}; border: 1px solid #262a31; border-radius: 6px; padding: 10px 14px; }
+.card .label { font-size: 12px; text-transform: uppercase; letter-spacing: .06em; color: {TEXT_DIM}; }
 .card .value { font-size: 18px; color: #e4e6ea; }
-.caution { background: #1b1e23; border-left: 3px solid #8a7a4a; padding: 8px 14px; margin-top: 16px; font-size: 13px; color: #a9aeb6; }
+.caution { background: {PANEL}; border-left: 3px solid {WARNING}; padding: 8px 14px; margin-top: 16px; font-size: 13px; color: #a9aeb6; }
 svg { display: block; max-width: 100%; height: auto; }
 figure { margin: 8px 0 4px; }
-figcaption { font-size: 13px; color: #8a9099; margin-top: 4px; }
+figcaption { font-size: 13px; color: {TEXT_DIM}; margin-top: 4px; }
 table { border-collapse: collapse; font-size: 13px; margin: 6px 0; }
 th, td { padding: 3px 10px; text-align: right; border-bottom: 1px solid #23272d; white-space: nowrap; }
-th { color: #8a9099; font-weight: 500; }
+th { color: {TEXT_DIM}; font-weight: 500; }
 td.left, th.left { text-align: left; }
 tr.attention td { background: #33291a; color: #f0d49a; }
-tr.attention td.flag { color: #ffcf70; font-weight: 600; }
+tr.attention td.flag { color: {WARNING}; font-weight: 600; }
 ul.findings { list-style: none; padding: 0; margin: 6px 0; }
-ul.findings li { margin: 4px 0; padding: 6px 10px; background: #1b1e23; border-radius: 4px; }
+ul.findings li { margin: 4px 0; padding: 6px 10px; background: {PANEL}; border-radius: 4px; }
 .sev { display: inline-block; min-width: 64px; font-size: 12px; font-weight: 600; text-transform: uppercase; letter-spacing: .05em; }
-.sev.error { color: #ff8f7a; }
-.sev.warning { color: #ffcf70; }
+.sev.error { color: {CLIP}; }
+.sev.warning { color: {WARNING}; }
 .sev.info { color: #9fc3e6; }
 code { font-family: ui-monospace, "SF Mono", Menlo, monospace; font-size: 13px; color: #d4d7dc; }
 footer { margin-top: 40px; font-size: 12px; color: #6f757e; }
 "#;
+
+/// The page's style sheet, with the colours of [`look`] (the editor's).
+fn style() -> String {
+    [
+        ("{BACKGROUND}", look::BACKGROUND),
+        ("{PANEL}", look::PANEL),
+        ("{TEXT}", look::TEXT),
+        ("{TEXT_DIM}", look::TEXT_DIM),
+        ("{WARNING}", look::WARNING),
+        ("{CLIP}", look::CLIP),
+    ]
+    .into_iter()
+    .fold(STYLE.to_string(), |css, (name, rgb)| {
+        css.replace(name, &look::css(rgb))
+    })
+}
 
 /// Escapes text for HTML element content and attribute values.
 pub fn escape(text: &str) -> String {
@@ -253,8 +270,9 @@ fn build_html(
     let title = format!("Fieldglass scan — {}", input.display_name());
     let _ = write!(
         h,
-        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<title>{}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<main>\n",
-        escape(&title)
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<title>{}</title>\n<style>{}</style>\n</head>\n<body>\n<main>\n",
+        escape(&title),
+        style()
     );
     let _ = writeln!(h, "<h1>Scan report: {}</h1>", escape(&input.display_name()));
     let _ = writeln!(
@@ -325,11 +343,11 @@ fn build_html(
         &format!("{} dBTP", fmt_level(omni.true_peak_dbtp, 1)),
         &if omni.conversion_gain_db.abs() > 0.005 {
             format!(
-                "whole file, 4× oversampled, SN3D-equivalent; as stored {} dBTP",
+                "whole programme, 4× oversampled, SN3D-equivalent; as stored {} dBTP",
                 fmt_level(omni.as_stored(omni.true_peak_dbtp), 1)
             )
         } else {
-            "whole file, 4× oversampled".to_string()
+            "whole programme, 4× oversampled".to_string()
         },
     );
     card(
@@ -494,9 +512,12 @@ fn build_html(
     h.push_str("<h2>Channels</h2>\n");
     let _ = writeln!(
         h,
-        "<p class=\"muted\">Whole-file figures per file channel (numbered from 1), raw as stored; “RMS as SN3D” is \
-         the level after conversion from the assumed format, which is what is compared with W (tolerance {:.1} dB). \
-         Highlighted rows need attention.</p>",
+        "<p class=\"muted\">Figures of the {} per file channel, numbered from 1 in file order, with the ACN it \
+         carries as read; levels raw as stored. “RMS as SN3D” is the level after conversion from the assumed format, \
+         which is what is compared with W: a channel {} by more than {:.1} dB is flagged. Highlighted rows need \
+         attention.</p>",
+        wording::WHOLE_PROGRAMME,
+        wording::LOUDER_THAN_W,
         result.options.over_omni_tolerance_db
     );
     let _ = writeln!(h, "<table>{CHANNEL_HEADER}");
