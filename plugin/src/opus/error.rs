@@ -15,11 +15,8 @@ pub enum OpusError {
     },
     /// The Ogg layer is broken: a bad page checksum, a cut-off page, no capture pattern.
     Ogg(String),
-    /// The file ends before the page that closes the Opus stream.
-    Truncated {
-        /// Frames delivered before the end was found.
-        frames_read: u64,
-    },
+    /// The file ends inside a page or before the stream's audio ends.
+    Truncated(String),
     /// The file is Ogg but its first stream is not Opus.
     NotOpus(String),
     /// The identification header (OpusHead) breaks RFC 7845 section 5.1 or RFC 8486 section 3.
@@ -67,10 +64,7 @@ impl fmt::Display for OpusError {
         match self {
             OpusError::Io { context, source } => write!(f, "{context}: {source}"),
             OpusError::Ogg(what) => write!(f, "broken Ogg stream: {what}"),
-            OpusError::Truncated { frames_read } => write!(
-                f,
-                "the file ends before the last page of the Opus stream (cut short after {frames_read} frames)"
-            ),
+            OpusError::Truncated(what) => write!(f, "the file is cut short or damaged: {what}"),
             OpusError::NotOpus(what) => write!(f, "not an Ogg Opus file: {what}"),
             OpusError::BadHeader(what) => write!(f, "invalid Opus identification header: {what}"),
             OpusError::UnsupportedFamily(family) => write!(

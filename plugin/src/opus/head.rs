@@ -139,7 +139,8 @@ impl OpusHead {
             }
         } else {
             let matrix_bytes = 2 * channels_usize * coded_channels;
-            if rest.len() < matrix_bytes {
+            // Version 1 defines nothing after the matrix, so its length is the matrix size.
+            if rest.len() < matrix_bytes || version == 1 && rest.len() != matrix_bytes {
                 return Err(OpusError::BadHeader(format!(
                     "the demixing matrix has {} bytes; {channels} output channels by {coded_channels} coded channels need {matrix_bytes}",
                     rest.len()
@@ -243,5 +244,7 @@ mod tests {
         version_16[8] = 16;
         assert!(OpusHead::parse(&version_16).is_err());
         assert!(OpusHead::parse(&header(4, 3, 2, 2, &[0; 32])).is_ok());
+        // A matrix one row too long for version 1.
+        assert!(OpusHead::parse(&header(4, 3, 2, 1, &[0; 32])).is_err());
     }
 }

@@ -19,5 +19,5 @@ mod tail;
 
 pub use error::OpusError;
 pub use head::{ChannelMapping, OpusHead};
-pub use reader::{OPUS_SAMPLE_RATE_HZ, OpusReader, is_ogg};
+pub use reader::{OPUS_SAMPLE_RATE_HZ, OpusReader, file_is_ogg, is_ogg};
 pub use tail::page_checksum;

@@ -44,14 +44,25 @@ pub fn is_ogg(first_bytes: &[u8]) -> bool {
     first_bytes.starts_with(b"OggS")
 }
 
+/// Whether the file at `path` starts with the Ogg capture pattern (false when it cannot be
+/// read: the caller's own open reports why).
+pub fn file_is_ogg(path: impl AsRef<Path>) -> bool {
+    let mut first = [0u8; 4];
+    File::open(path)
+        .and_then(|mut f| f.read_exact(&mut first))
+        .is_ok_and(|()| is_ogg(&first))
+}
+
 fn ogg_error(e: OggReadError, frames_read: u64) -> OpusError {
     match e {
         OggReadError::ReadError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
-            OpusError::Truncated { frames_read }
+            OpusError::Truncated(format!(
+                "the file ends inside a page after {frames_read} frames"
+            ))
         }
         OggReadError::ReadError(io) => OpusError::io("reading the file", io),
-        OggReadError::HashMismatch(expected, found) => OpusError::Ogg(format!(
-            "a page's checksum is {found:#010x}, its contents give {expected:#010x}"
+        OggReadError::HashMismatch(stored, calculated) => OpusError::Ogg(format!(
+            "a page's stored checksum is {stored:#010x}, its contents give {calculated:#010x}"
         )),
         OggReadError::NoCapturePatternFound => {
             OpusError::Ogg("no Ogg page where one should start".into())
@@ -87,7 +98,7 @@ impl<R: Read + Seek> OpusReader<R> {
             let p = packets
                 .read_packet()
                 .map_err(|e| ogg_error(e, 0))?
-                .ok_or(OpusError::Truncated { frames_read: 0 })?;
+                .ok_or_else(|| OpusError::Truncated("no comment header".into()))?;
             if p.stream_serial() == serial {
                 break p;
             }
@@ -97,7 +108,13 @@ impl<R: Read + Seek> OpusReader<R> {
                 "the second packet is not the comment header ('OpusTags')".into(),
             ));
         }
+        if let Some(at) = tail.partial_page_at {
+            return Err(OpusError::Truncated(format!(
+                "the page at byte {at} is incomplete or damaged and no whole page follows it"
+            )));
+        }
         let last = tail
+            .pages
             .iter()
             .rev()
             .find(|p| p.serial == serial && p.granule != u64::MAX)
@@ -108,6 +125,11 @@ impl<R: Read + Seek> OpusReader<R> {
                 )
             })?;
         let pre_skip = u64::from(head.pre_skip);
+        if last.granule == 0 {
+            return Err(OpusError::BadGranule(
+                "the stream holds no audio (its last granule position is 0)".into(),
+            ));
+        }
         if last.granule < pre_skip {
             return Err(OpusError::BadGranule(format!(
                 "the pre-skip of {pre_skip} frames is longer than the whole stream (last granule position {})",
@@ -217,9 +239,10 @@ impl<R: Read + Seek> OpusReader<R> {
             match self.packets.read_packet() {
                 Err(e) => return Err(ogg_error(e, self.delivered)),
                 Ok(None) => {
-                    return Err(OpusError::Truncated {
-                        frames_read: self.delivered,
-                    });
+                    return Err(OpusError::Truncated(format!(
+                        "the stream ends after {} frames, its last page's granule position says {}",
+                        self.delivered, self.frames
+                    )));
                 }
                 Ok(Some(p)) if p.stream_serial() == self.serial => break p,
                 Ok(Some(_)) => {} // another logical stream multiplexed beside ours

@@ -16,28 +16,41 @@ pub struct TailPage {
     pub end_of_stream: bool,
 }
 
-/// The whole pages in the last [`TAIL_BYTES`] of `inner`, in file order. Leaves `inner` at the
-/// start.
-pub fn tail_pages<R: Read + Seek>(inner: &mut R) -> std::io::Result<Vec<TailPage>> {
+/// What the end of a file holds.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct Tail {
+    /// The whole pages (checksum verified) in the last [`TAIL_BYTES`], in file order.
+    pub pages: Vec<TailPage>,
+    /// The byte offset of a capture pattern after the last whole page that does not begin a
+    /// whole page: the file ends inside a page.
+    pub partial_page_at: Option<u64>,
+}
+
+/// The pages at the end of `inner`. Leaves `inner` at the start.
+pub fn tail_pages<R: Read + Seek>(inner: &mut R) -> std::io::Result<Tail> {
     let len = inner.seek(SeekFrom::End(0))?;
     let start = len.saturating_sub(TAIL_BYTES);
     inner.seek(SeekFrom::Start(start))?;
     let mut tail = Vec::with_capacity((len - start) as usize);
     inner.take(TAIL_BYTES).read_to_end(&mut tail)?;
     inner.seek(SeekFrom::Start(0))?;
-    let mut pages = Vec::new();
+    let mut found = Tail::default();
     let mut at = 0;
-    while let Some(found) = find_capture(&tail[at..]) {
-        let p = at + found;
+    while let Some(offset) = find_capture(&tail[at..]) {
+        let p = at + offset;
         match whole_page(&tail[p..]) {
             Some((page, len)) => {
-                pages.push(page);
+                found.pages.push(page);
+                found.partial_page_at = None;
                 at = p + len;
             }
-            None => at = p + 1,
+            None => {
+                found.partial_page_at.get_or_insert(start + p as u64);
+                at = p + 1;
+            }
         }
     }
-    Ok(pages)
+    Ok(found)
 }
 
 fn find_capture(bytes: &[u8]) -> Option<usize> {
