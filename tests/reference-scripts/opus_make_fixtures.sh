@@ -37,3 +37,4 @@ for f in family2_order1_stereo family2_order3 family3_order3 family3_order1_gain
   "$work/opus_reference" decode "$out/$f.opus" "$work/$f.f32"
 done
 python3 tests/reference-scripts/opus_reference_summary.py "$work" "$out"
+python3 tests/reference-scripts/opus_fuzz_seeds.py

@@ -68,7 +68,8 @@ fn whole_page(bytes: &[u8]) -> Option<(TailPage, usize)> {
     let body_len: usize = lacing.iter().map(|&b| usize::from(b)).sum();
     let page = bytes.get(..header_len + body_len)?;
     let stored = u32::from_le_bytes([page[22], page[23], page[24], page[25]]);
-    if page_checksum(page) != stored {
+    // Under the fuzzer the ogg crate skips checksums too, so mutated pages reach the parsers.
+    if !cfg!(fuzzing) && page_checksum(page) != stored {
         return None;
     }
     let granule = u64::from_le_bytes(page[6..14].try_into().ok()?);
