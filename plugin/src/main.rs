@@ -28,7 +28,7 @@ struct Cli {
 
 #[derive(Subcommand, Debug)]
 enum Command {
-    /// Scan a WAV/RF64/BW64 file (or the demo scene) and report format, levels, loudness and sources.
+    /// Scan a WAV/RF64/BW64 or Ogg Opus file (or the demo scene) and report format, levels, loudness and sources.
     Scan(ScanArgs),
     /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
     Demo(DemoArgs),
@@ -41,8 +41,9 @@ enum Command {
 #[cfg(feature = "standalone")]
 #[derive(Args, Debug)]
 struct LiveArgs {
-    /// Feed the analysis from `demo` (the demo scene) or a WAV file at real-time pace, instead
-    /// of the audio input; with it the dummy audio device is used unless --backend is given.
+    /// Feed the analysis from `demo` (the demo scene) or a WAV or Ogg Opus file at real-time
+    /// pace, instead of the audio input; with it the dummy audio device is used unless
+    /// --backend is given.
     #[arg(long, value_name = "demo|FILE")]
     play: Option<String>,
     /// Ambisonic order of the layout (1-7); with --play FILE it follows the file.
@@ -71,9 +72,7 @@ fn run_live(args: LiveArgs) -> Result<ExitCode, CliError> {
             set_play_source(PlaySource::Demo);
         } else {
             let path = PathBuf::from(play);
-            let reader = fieldglass::wav::WavReader::open(&path)
-                .map_err(|e| CliError::input(format!("cannot read '{}': {e}", path.display())))?;
-            let channels = usize::from(reader.spec().channels);
+            let channels = fieldglass::player::file_channels(&path).map_err(CliError::input)?;
             order = fieldglass_dsp::sh::order_of_channel_count(channels)
                 .filter(|o| (1..=7).contains(o))
                 .ok_or_else(|| {
@@ -176,7 +175,7 @@ enum SampleFormatArg {
 
 #[derive(Args, Debug)]
 struct ScanArgs {
-    /// The file to scan (WAV, RF64 or BW64).
+    /// The file to scan (WAV, RF64, BW64, or Ogg Opus with channel mapping family 2 or 3).
     #[arg(required_unless_present = "demo", conflicts_with = "demo")]
     file: Option<PathBuf>,
     /// Scan the built-in demo scene instead of a file.
