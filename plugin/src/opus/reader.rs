@@ -165,8 +165,8 @@ impl<R: Read + Seek> OpusReader<R> {
     }
 
     /// Frames the stream holds after pre-skip and end trimming: the last page's granule
-    /// position minus the pre-skip. For a file cut short this is what its last whole page
-    /// says, and reading ends with [`OpusError::Truncated`] before reaching it.
+    /// position minus the pre-skip, known before decoding. A file that ends inside a page is
+    /// refused at opening; one cut at a page boundary reads as the shorter stream it is.
     pub fn frames(&self) -> u64 {
         self.frames
     }
