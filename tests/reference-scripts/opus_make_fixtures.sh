@@ -20,10 +20,11 @@ ffmpeg -v error -y -i "$work/o1.wav" \
   -f lavfi -i "sine=frequency=660:sample_rate=48000:duration=1" \
   -filter_complex "[0:a][1:a][2:a]amerge=inputs=3[a]" -map "[a]" -c:a pcm_f32le "$work/o1_stereo.wav"
 
-# Family 2 with libopus through ffmpeg.
-ffmpeg -v error -y -i "$work/o1_stereo.wav" -c:a libopus -mapping_family 2 -b:a 160k \
+# Family 2 with libopus through ffmpeg (bitexact: a fixed stream serial and no version tags,
+# so a rerun writes the same bytes).
+ffmpeg -v error -y -i "$work/o1_stereo.wav" -fflags +bitexact -c:a libopus -mapping_family 2 -b:a 160k \
   "$out/family2_order1_stereo.opus"
-ffmpeg -v error -y -i "$work/o3.wav" -c:a libopus -mapping_family 2 -b:a 320k \
+ffmpeg -v error -y -i "$work/o3.wav" -fflags +bitexact -c:a libopus -mapping_family 2 -b:a 320k \
   "$out/family2_order3.opus"
 # Family 3 with the projection encoder; the order-1 file carries an output gain of -6 dB.
 ffmpeg -v error -y -i "$work/o3.wav" -f f32le "$work/o3.f32"
