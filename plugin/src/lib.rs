@@ -9,6 +9,7 @@ pub mod ambisonic_buses;
 pub mod audio;
 pub mod editor;
 pub mod look;
+pub mod opus;
 pub mod params;
 pub mod picture;
 pub mod player;

@@ -31,7 +31,7 @@ struct Cli {
 
 #[derive(Subcommand, Debug)]
 enum Command {
-    /// Scan a WAV/RF64/BW64 file (or the demo scene) and report format, levels, loudness and sources.
+    /// Scan a WAV/RF64/BW64 or Ogg Opus file (or the demo scene) and report format, levels, loudness and sources.
     Scan(ScanArgs),
     /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
     Demo(DemoArgs),
@@ -47,8 +47,9 @@ enum Command {
 #[cfg(feature = "standalone")]
 #[derive(Args, Debug)]
 struct LiveArgs {
-    /// Feed the analysis from `demo` (the demo scene) or a WAV file at real-time pace, instead
-    /// of the audio input; with it the dummy audio device is used unless --backend is given.
+    /// Feed the analysis from `demo` (the demo scene) or a WAV or Ogg Opus file at real-time
+    /// pace, instead of the audio input; with it the dummy audio device is used unless
+    /// --backend is given.
     #[arg(long, value_name = "demo|FILE")]
     play: Option<String>,
     /// Ambisonic order of the layout (1-7); with --play FILE it follows the file.
@@ -77,9 +78,7 @@ fn run_live(args: LiveArgs) -> Result<ExitCode, CliError> {
             set_play_source(PlaySource::Demo);
         } else {
             let path = PathBuf::from(play);
-            let reader = fieldglass::wav::WavReader::open(&path)
-                .map_err(|e| CliError::input(format!("cannot read '{}': {e}", path.display())))?;
-            let channels = usize::from(reader.spec().channels);
+            let channels = fieldglass::player::file_channels(&path).map_err(CliError::input)?;
             order = fieldglass_dsp::sh::order_of_channel_count(channels)
                 .filter(|o| (1..=7).contains(o))
                 .ok_or_else(|| {
@@ -182,8 +181,8 @@ enum SampleFormatArg {
 
 #[derive(Args, Debug)]
 struct ScanArgs {
-    /// Files or folders to scan (WAV, AMB, RF64, BW64; folders are searched recursively for
-    /// those). One file prints a summary; several files or a folder make a batch.
+    /// Files or folders to scan (WAV, AMB, RF64, BW64, Ogg Opus with channel mapping family
+    /// 2 or 3; folders are searched recursively for those). One file prints a summary; several files or a folder make a batch.
     #[arg(
         required_unless_present = "demo",
         conflicts_with = "demo",
@@ -379,7 +378,7 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         let (files, errors) = batch::collect_inputs(&args.inputs);
         if files.is_empty() && errors.is_empty() {
             return Err(CliError::input(
-                "no file to scan: the folders hold no .wav, .amb, .rf64 or .bw64 files",
+                "no file to scan: the folders hold no .wav, .amb, .rf64, .bw64, .opus or .ogg files",
             ));
         }
         let cores = std::thread::available_parallelism().map_or(1, |n| n.get());

@@ -1,9 +1,10 @@
-//! Feeding the analysis from the demo scene or a WAV file at real-time pace, for trying the
+//! Feeding the analysis from the demo scene, a WAV file or an Ogg Opus file at real-time pace, for trying the
 //! editor on a machine without an audio interface (`fieldglass live --play …`).
 //!
 //! The player replaces the host's input as the analysis feed only; the plugin's audio path is
 //! untouched. It is off unless the command line sets a source before the plugin starts.
 
+use crate::opus::{self, OpusReader};
 use crate::wav::WavReader;
 use fieldglass_dsp::engine::StreamSetup;
 use fieldglass_dsp::engine::handoff::AudioSide;
@@ -54,6 +55,24 @@ enum Feed {
         reader: WavReader<std::io::BufReader<std::fs::File>>,
         path: PathBuf,
     },
+    Opus {
+        reader: Box<OpusReader<std::io::BufReader<std::fs::File>>>,
+        path: PathBuf,
+    },
+}
+
+/// The channel count of a file to play: WAV, RF64, BW64 or Ogg Opus (told by content).
+pub fn file_channels(path: &std::path::Path) -> Result<usize, String> {
+    let unreadable = |e: &dyn std::fmt::Display| format!("cannot read '{}': {e}", path.display());
+    if opus::file_is_ogg(path) {
+        OpusReader::open(path)
+            .map(|r| r.channels())
+            .map_err(|e| unreadable(&e))
+    } else {
+        WavReader::open(path)
+            .map(|r| usize::from(r.spec().channels))
+            .map_err(|e| unreadable(&e))
+    }
 }
 
 fn open(source: &PlaySource, setup: StreamSetup) -> Result<Feed, String> {
@@ -69,6 +88,22 @@ fn open(source: &PlaySource, setup: StreamSetup) -> Result<Feed, String> {
             DemoScene::new(config)
                 .map(|s| Feed::Demo(Box::new(s)))
                 .map_err(|e| e.to_string())
+        }
+        PlaySource::File(path) if opus::file_is_ogg(path) => {
+            let reader = OpusReader::open(path)
+                .map_err(|e| format!("cannot read '{}': {e}", path.display()))?;
+            if reader.channels() != setup.channels {
+                return Err(format!(
+                    "'{}' has {} channels but the plugin runs with {}; choose the matching layout",
+                    path.display(),
+                    reader.channels(),
+                    setup.channels
+                ));
+            }
+            Ok(Feed::Opus {
+                reader: Box::new(reader),
+                path: path.clone(),
+            })
         }
         PlaySource::File(path) => {
             let reader = WavReader::open(path)
@@ -116,6 +151,21 @@ fn play(source: PlaySource, setup: StreamSetup, mut audio: AudioSide, generation
                     // Loop the file.
                     if reader.seek_frame(0).is_err() {
                         return;
+                    }
+                    continue;
+                }
+                Ok(n) => n,
+                Err(e) => {
+                    eprintln!("fieldglass: reading '{}': {e}", path.display());
+                    return;
+                }
+            },
+            Feed::Opus { reader, path } => match reader.read_planar(&mut buffers, BLOCK_FRAMES) {
+                Ok(0) => {
+                    // Loop the file: a stream is read from its start again.
+                    match OpusReader::open(&*path) {
+                        Ok(again) => **reader = again,
+                        Err(_) => return,
                     }
                     continue;
                 }

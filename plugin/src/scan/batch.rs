@@ -18,7 +18,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::mpsc;
 
 /// File extensions (lower case) a folder contributes: the containers `scan` reads.
-pub const SCANNED_EXTENSIONS: [&str; 5] = ["wav", "wave", "amb", "rf64", "bw64"];
+pub const SCANNED_EXTENSIONS: [&str; 7] = ["wav", "wave", "amb", "rf64", "bw64", "opus", "ogg"];
 
 /// What to do with many files.
 #[derive(Clone, Debug)]

@@ -7,6 +7,7 @@
 use super::CliError;
 use super::progress::Progress;
 use crate::adm::{self, AdmDeclaration};
+use crate::opus::{self, OpusReader};
 use crate::wav::{Container, SampleFormat, WavReader};
 use fieldglass_dsp::engine::findings::{
     ChannelFacts, FindingInputs, MISMATCH_CONFIDENCE, collect_findings,
@@ -21,7 +22,7 @@ use fieldglass_dsp::meters::FullScale;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
 use fieldglass_dsp::wording;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 /// Frames per channel read and analysed at a time.
@@ -117,9 +118,9 @@ pub struct InputInfo {
     pub channels: usize,
     pub sample_rate_hz: f64,
     pub frames: u64,
-    /// "pcm16", "pcm24", "pcm32", "float32", … ; "float32" for the demo.
+    /// "pcm16", "pcm24", "pcm32", "float32", … ; "opus" for Ogg Opus; "float32" for the demo.
     pub sample_format: String,
-    /// "riff", "rf64", "bw64" or "demo".
+    /// "riff", "rf64", "bw64", "ogg-opus" or "demo".
     pub container: String,
     /// The file declares the AMB B-format sub-format (a FuMa file).
     pub declares_b_format: bool,
@@ -233,6 +234,8 @@ enum Source {
         scene: Box<DemoScene>,
         remaining: u64,
     },
+    /// An Ogg Opus stream of channel mapping family 2 or 3, decoded to ACN/SN3D.
+    Opus(Box<OpusReader<std::io::BufReader<std::fs::File>>>),
 }
 
 impl Source {
@@ -275,6 +278,9 @@ impl Source {
                     .map_err(|e| CliError::input(format!("cannot read '{name}': {e}")))?;
                 Ok(n)
             }
+            Source::Opus(reader) => reader
+                .read_planar(buffers, BLOCK_FRAMES)
+                .map_err(|e| CliError::input(format!("cannot read '{name}': {e}"))),
             Source::Demo { scene, remaining } => {
                 let n = (*remaining).min(BLOCK_FRAMES as u64) as usize;
                 for b in buffers.iter_mut() {
@@ -301,6 +307,7 @@ fn describe_sample_format(format: SampleFormat, bits: u16) -> String {
 
 fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputInfo), CliError> {
     match input {
+        ScanInput::File(path) if opus::file_is_ogg(path) => open_opus(path, options),
         ScanInput::File(path) => {
             let name = path.display().to_string();
             let reader = WavReader::open(path)
@@ -423,6 +430,49 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
             ))
         }
     }
+}
+
+/// An Ogg Opus file (chosen by its capture pattern, whatever its name). Families 2 and 3 declare
+/// ACN/SN3D, so that is the assumption unless --assume says otherwise.
+fn open_opus(path: &Path, options: &mut ScanOptions) -> Result<(Source, InputInfo), CliError> {
+    let reader = OpusReader::open(path)
+        .map_err(|e| CliError::input(format!("cannot read '{}': {e}", path.display())))?;
+    if options.assumed_source == AssumedSource::Default {
+        options.assumed = AmbiFormat::ACN_SN3D;
+        options.assumed_source = AssumedSource::Metadata;
+    }
+    let head = reader.head();
+    let info = InputInfo {
+        path: Some(path.to_path_buf()),
+        description: format!(
+            "{} Hz, {} channels, Opus, Ogg (channel mapping family {}{}{})",
+            reader.sample_rate(),
+            reader.channels(),
+            head.mapping_family,
+            if head.mapping_family == 3 {
+                ", demixing matrix"
+            } else {
+                ""
+            },
+            if reader.has_stereo_pair() {
+                "; with a non-diegetic stereo pair"
+            } else {
+                ""
+            },
+        ),
+        channels: reader.channels(),
+        sample_rate_hz: f64::from(reader.sample_rate()),
+        frames: reader.frames(),
+        sample_format: "opus".to_string(),
+        container: "ogg-opus".to_string(),
+        declares_b_format: false,
+        mixed_order_set: None,
+        warnings: Vec::new(),
+        full_scale: FullScale::Float,
+        metadata: None,
+        route: None,
+    };
+    Ok((Source::Opus(Box::new(reader)), info))
 }
 
 /// Scans `input`. Errors carry the exit code: 2 for anything about the input.
