@@ -1,0 +1,7 @@
+//! Comparing a delivery with its master: time offset, orientation (rotation or mirror), channel
+//! faults and detail lost. Both streams are ACN/SN3D here (converted at the input); the
+//! `fieldglass compare` command drives these pieces over two passes of the files.
+
+pub mod orientation;
+
+pub use orientation::{MirrorAxis, Orientation, procrustes};
