@@ -2,6 +2,10 @@
 //! faults and detail lost. Both streams are ACN/SN3D here (converted at the input); the
 //! `fieldglass compare` command drives these pieces over two passes of the files.
 
+pub mod alignment;
+pub mod coherence;
+pub mod covariance;
 pub mod orientation;
+pub mod spatial;
 
 pub use orientation::{MirrorAxis, Orientation, procrustes};
