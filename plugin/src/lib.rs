@@ -6,6 +6,7 @@
 
 pub mod ambisonic_buses;
 pub mod audio;
+pub mod compare;
 pub mod editor;
 pub mod params;
 pub mod player;

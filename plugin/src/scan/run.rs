@@ -202,7 +202,7 @@ impl ScanResult {
 }
 
 /// Where blocks come from.
-enum Source {
+pub(crate) enum Source {
     File {
         reader: WavReader<std::io::BufReader<std::fs::File>>,
         /// For a FuMa mixed-order set: the expander and the file-order buffers it reads from.
@@ -215,7 +215,7 @@ enum Source {
 }
 
 impl Source {
-    fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
+    pub(crate) fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
         match self {
             Source::File { reader, mixed } => {
                 let unreadable = |e| CliError::input(format!("cannot read '{name}': {e}"));
@@ -263,7 +263,10 @@ fn describe_sample_format(format: SampleFormat, bits: u16) -> String {
     }
 }
 
-fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputInfo), CliError> {
+pub(crate) fn open(
+    input: &ScanInput,
+    options: &mut ScanOptions,
+) -> Result<(Source, InputInfo), CliError> {
     match input {
         ScanInput::File(path) => {
             let name = path.display().to_string();
