@@ -67,10 +67,10 @@ fn format_text(f: AmbiFormat) -> &'static str {
 }
 
 fn channel_text(result: &CompareResult, acn: usize) -> String {
+    // Messages number channels from 1, as DAWs do (the JSON indices count from 0).
     match result.candidate_file_channels.get(acn).copied().flatten() {
-        Some(ch) if ch != acn => format!("channel {ch} (ACN {acn})"),
-        Some(ch) => format!("channel {ch}"),
-        None => format!("ACN {acn}"),
+        Some(ch) => format!("{} (ACN {acn})", ch + 1),
+        None => format!("for ACN {acn}"),
     }
 }
 
@@ -145,7 +145,7 @@ pub fn compare_findings(result: &CompareResult) -> Vec<CompareFinding> {
             Severity::Error,
             CompareCode::ChannelsSwapped,
             format!(
-                "{} and {} are swapped: each carries the other's reference signal (correlation {:.2} and {:.2}).{rejected}",
+                "Channels {} and {} are swapped: each carries the other's reference signal (correlation {:.2} and {:.2}).{rejected}",
                 channel_text(result, i),
                 channel_text(result, j),
                 corr(i),
@@ -163,7 +163,7 @@ pub fn compare_findings(result: &CompareResult) -> Vec<CompareFinding> {
             Severity::Error,
             CompareCode::PolarityInverted,
             format!(
-                "{} is inverted: correlation {:.2} with the reference.{rejected}",
+                "Channel {} is inverted: correlation {:.2} with the reference.{rejected}",
                 channel_text(result, i),
                 spatial.channels[i].correlation.unwrap_or(f64::NAN)
             ),
