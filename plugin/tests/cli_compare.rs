@@ -18,6 +18,7 @@
 use fieldglass::wav::{SampleFormat, WavSpec, WavWriter, WriterOptions};
 use fieldglass_dsp::compare::MirrorAxis;
 use fieldglass_dsp::compare::orientation::rotation_from_angles;
+use fieldglass_dsp::format::{AmbiFormat, ConversionPlan};
 use fieldglass_dsp::scene::{SceneConfig, render_seconds};
 use fieldglass_dsp::sh::{Matrix3, ShRotation};
 use serde_json::Value;
@@ -351,6 +352,60 @@ fn six_db_level_change() {
         assert!(f(&order["coherence"]) > 0.9999);
     }
     assert_eq!(codes(&doc), vec!["level-change".to_string()]);
+}
+
+#[test]
+fn demo_reference_against_its_own_rendering() {
+    // The demo reference is rendered on the fly with the same scene settings as `master()`.
+    let pair = Pair::new(master());
+    let out = bin()
+        .args(["compare", "--demo", "--demo-seconds", "5", "--json", "-"])
+        .arg(pair.path("candidate.wav"))
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["reference"]["demo"], true);
+    assert!(
+        doc["findings"].as_array().unwrap().is_empty(),
+        "{:#}",
+        doc["findings"]
+    );
+}
+
+#[test]
+fn fuma_delivery_read_as_fuma_matches_and_says_the_format_changed() {
+    // FuMa channel order and maxN weights from dsp-core's conversion plan (checked there
+    // against the Furse-Malham tables).
+    let plan = ConversionPlan::from_sn3d(AmbiFormat::FUMA, 3).unwrap();
+    let frames = master()[0].len();
+    let mut fuma = vec![vec![0.0f32; frames]; 16];
+    {
+        let input: Vec<&[f32]> = master().iter().map(|c| c.as_slice()).collect();
+        let mut output: Vec<&mut [f32]> = fuma.iter_mut().map(|c| c.as_mut_slice()).collect();
+        plan.apply(&input, &mut output);
+    }
+    let pair = Pair::new(&fuma);
+    let out = pair.run(&["--assume-candidate", "fuma", "--json", "-"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(codes(&doc), vec!["format-changed".to_string()]);
+    assert_eq!(doc["candidate"]["assumed"]["ordering"], "fuma");
+    for order in doc["orders"].as_array().unwrap() {
+        assert!(f(&order["level_change_db"]).abs() < 1e-3, "{order}");
+    }
+    // FuMa file channel 1 is X (ACN 3).
+    let channels = doc["channels"].as_array().unwrap();
+    assert_eq!(channels[1]["index"], 1);
+    assert_eq!(channels[1]["acn"], 3);
 }
 
 #[test]
