@@ -1,7 +1,7 @@
 //! Findings of a comparison: stable codes (part of the `fieldglass-compare/1` contract), a
 //! severity and one plain sentence each.
 
-use super::run::{CompareResult, Side};
+use super::run::{CompareResult, Side, tidy};
 use fieldglass_dsp::engine::{Band, Severity};
 use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::sh::Matrix3;
@@ -108,7 +108,9 @@ pub fn compare_findings(result: &CompareResult) -> Vec<CompareFinding> {
     let o = spatial.orientation;
     let angles = format!(
         "yaw {:.1}°, pitch {:.1}°, roll {:.1}°",
-        o.yaw_deg, o.pitch_deg, o.roll_deg
+        tidy(o.yaw_deg, 1),
+        tidy(o.pitch_deg, 1),
+        tidy(o.roll_deg, 1)
     );
     if let Some(axis) = o.mirror {
         let turn = if o.largest_angle_deg() >= thresholds.rotation_deg {

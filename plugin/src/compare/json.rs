@@ -2,7 +2,7 @@
 //! serialised with serde; numbers that are not finite become `null`.
 
 use super::findings::CompareFinding;
-use super::run::CompareResult;
+use super::run::{CompareResult, tidy};
 use crate::scan::ScanResult;
 use crate::scan::json::{Assumed, Input};
 use fieldglass_dsp::compare::coherence::CoherenceFigures;
@@ -168,8 +168,7 @@ fn num(x: f64) -> Option<f64> {
 }
 
 fn rounded(x: Option<f64>, decimals: i32) -> Option<f64> {
-    let k = 10f64.powi(decimals);
-    x.and_then(num).map(|v| (v * k).round() / k)
+    x.and_then(num).map(|v| tidy(v, decimals))
 }
 
 fn level(x: f64) -> Option<f64> {

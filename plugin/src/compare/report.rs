@@ -2,7 +2,7 @@
 //! URIs; opens offline), the three map pictures as PNG files beside it, and the JSON twin.
 
 use super::json::to_json_string;
-use super::run::CompareResult;
+use super::run::{CompareResult, tidy};
 use crate::scan::CliError;
 use base64::Engine as _;
 use fieldglass_dsp::engine::{Band, MapImage, Severity, SourceReading};
@@ -126,7 +126,7 @@ fn difference_png(width: usize, height: usize, values: &[f32]) -> Result<Vec<u8>
 
 fn opt(x: Option<f64>, decimals: usize) -> String {
     match x {
-        Some(v) if v.is_finite() => format!("{v:.decimals$}"),
+        Some(v) if v.is_finite() => format!("{:.decimals$}", tidy(v, decimals as i32)),
         _ => "—".to_string(),
     }
 }
@@ -244,9 +244,9 @@ pub fn write_report(result: &CompareResult, dir: &Path) -> Result<PathBuf, CliEr
         opt(a.correlation, 3),
         a.overlap_frames as f64 / rate,
         result.common_order,
-        o.yaw_deg,
-        o.pitch_deg,
-        o.roll_deg,
+        tidy(o.yaw_deg, 1),
+        tidy(o.pitch_deg, 1),
+        tidy(o.roll_deg, 1),
         o.mirror.map_or("none", |m| m.label()),
         opt(result.spatial.fit, 3)
     );

@@ -143,6 +143,12 @@ impl CompareResult {
     }
 }
 
+/// `x` rounded to `decimals` places, without a negative zero (so "-0.0" is never printed).
+pub fn tidy(x: f64, decimals: i32) -> f64 {
+    let k = 10f64.powi(decimals);
+    (x * k).round() / k + 0.0
+}
+
 fn scan_options(format: Option<AmbiFormat>, progress: bool) -> ScanOptions {
     ScanOptions {
         assumed: format.unwrap_or(AmbiFormat::ACN_SN3D),

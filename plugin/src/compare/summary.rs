@@ -1,12 +1,12 @@
 //! The short human summary `fieldglass compare` prints on stdout.
 
-use super::run::CompareResult;
+use super::run::{CompareResult, tidy};
 use fieldglass_dsp::engine::Band;
 use std::fmt::Write;
 
 fn opt(x: Option<f64>, decimals: usize, unit: &str) -> String {
     match x {
-        Some(v) if v.is_finite() => format!("{v:.decimals$}{unit}"),
+        Some(v) if v.is_finite() => format!("{:.decimals$}{unit}", tidy(v, decimals as i32)),
         _ => "—".to_string(),
     }
 }
@@ -34,9 +34,9 @@ pub fn summary(result: &CompareResult, report: Option<&str>) -> String {
     let _ = writeln!(
         s,
         "  rotation    yaw {:.1}°, pitch {:.1}°, roll {:.1}°{}, first-order fit {}",
-        o.yaw_deg,
-        o.pitch_deg,
-        o.roll_deg,
+        tidy(o.yaw_deg, 1),
+        tidy(o.pitch_deg, 1),
+        tidy(o.roll_deg, 1),
         o.mirror
             .map(|m| format!(", mirrored {}", m.label()))
             .unwrap_or_default(),
