@@ -41,6 +41,8 @@ pub struct OffsetSearch {
     spectrum_b: Vec<Complex<f64>>,
     product: Vec<f64>,
     scratch: Vec<Complex<f64>>,
+    reference_ended: bool,
+    candidate_ended: bool,
 }
 
 impl OffsetSearch {
@@ -71,6 +73,8 @@ impl OffsetSearch {
             scratch: vec![Complex::default(); scratch_len],
             forward,
             inverse,
+            reference_ended: false,
+            candidate_ended: false,
         }
     }
 
@@ -85,15 +89,43 @@ impl OffsetSearch {
         self.correlate_ready_blocks(false);
     }
 
-    /// Appends candidate W frames.
+    /// Appends candidate W frames. Frames no reference frame can meet are not kept.
     pub fn push_candidate(&mut self, w: &[f32]) {
-        self.candidate.extend(w.iter().map(|&v| v as f64));
+        let keep = if self.reference_ended {
+            (self.reference.len() + 2 * self.max_lag)
+                .saturating_sub(self.candidate.len())
+                .min(w.len())
+        } else {
+            w.len()
+        };
+        self.candidate.extend(w[..keep].iter().map(|&v| v as f64));
         self.correlate_ready_blocks(false);
+    }
+
+    /// The reference has no more frames (its last block is correlated as soon as the
+    /// candidate frames it needs are in).
+    pub fn end_reference(&mut self) {
+        self.reference_ended = true;
+        self.correlate_ready_blocks(false);
+    }
+
+    /// The candidate has no more frames (the rest counts as zeros), so reference blocks need
+    /// not wait for it: memory stays bounded when one stream is much longer.
+    pub fn end_candidate(&mut self) {
+        self.candidate_ended = true;
+        self.correlate_ready_blocks(false);
+    }
+
+    /// Frames held in the buffers (for tests of the memory bound).
+    pub fn buffered_frames(&self) -> usize {
+        self.reference.len() + self.candidate.len()
     }
 
     /// Correlates what is left (both streams end here) and returns the best lag, or `None`
     /// if either W is silent at every lag.
     pub fn finish(mut self) -> Option<OffsetEstimate> {
+        self.reference_ended = true;
+        self.candidate_ended = true;
         self.correlate_ready_blocks(true);
         let (index, &value) = self
             .sums
@@ -109,12 +141,14 @@ impl OffsetSearch {
     fn correlate_ready_blocks(&mut self, at_end: bool) {
         let (b, l) = (self.block, self.max_lag);
         loop {
-            let full = self.reference.len() >= b && self.candidate.len() >= b + 2 * l;
-            let last = at_end && !self.reference.is_empty();
-            if !(full || last) {
+            // A block is ready when its reference frames are in (all b, or the last few) and
+            // the candidate frames it meets are in (or the candidate has ended).
+            let ref_frames = self.reference.len().min(b);
+            let ref_ready = self.reference.len() >= b || (self.reference_ended && ref_frames > 0);
+            let cand_ready = self.candidate.len() >= ref_frames + 2 * l || self.candidate_ended;
+            if !(ref_ready && cand_ready) {
                 return;
             }
-            let ref_frames = self.reference.len().min(b);
             let cand_frames = self.candidate.len().min(b + 2 * l);
             self.a.fill(0.0);
             self.a[..ref_frames].copy_from_slice(&self.reference[..ref_frames]);
@@ -124,6 +158,11 @@ impl OffsetSearch {
             self.reference.drain(..ref_frames);
             let drop = ref_frames.min(self.candidate.len());
             self.candidate.drain(..drop);
+            if self.reference_ended && self.reference.is_empty() {
+                // Nothing left for any candidate frame to meet.
+                self.candidate.clear();
+                self.candidate_ended = true;
+            }
             if at_end && self.reference.is_empty() {
                 return;
             }
@@ -219,6 +258,29 @@ mod tests {
                 .sum();
             assert!((found.cross_correlation - direct).abs() < 1e-6 * direct.abs());
         }
+    }
+
+    #[test]
+    fn unequal_lengths_keep_memory_bounded_and_the_sum_exact() {
+        let reference = noise(200_000, 9);
+        let candidate: Vec<f32> = reference[..30_000].to_vec();
+        let mut s = OffsetSearch::new(500);
+        let mut most = 0;
+        for (i, r) in reference.chunks(4096).enumerate() {
+            s.push_reference(r);
+            match candidate.chunks(4096).nth(i) {
+                Some(c) => s.push_candidate(c),
+                None => s.end_candidate(),
+            }
+            most = most.max(s.buffered_frames());
+        }
+        s.end_reference();
+        // Never more than a block of each plus the lag margin and one read.
+        assert!(most < 2 * (16_384 + 4096), "{most}");
+        let found = s.finish().unwrap();
+        assert_eq!(found.offset_frames, 0);
+        let direct: f64 = candidate.iter().map(|&v| (v as f64) * (v as f64)).sum();
+        assert!((found.cross_correlation - direct).abs() < 1e-6 * direct);
     }
 
     #[test]

@@ -358,9 +358,17 @@ pub fn compare(
         let mut buffer = vec![Vec::with_capacity(BLOCK_FRAMES)];
         loop {
             let nr = r.take(BLOCK_FRAMES, &mut buffer)?;
-            search.push_reference(&buffer[0]);
+            if nr == 0 {
+                search.end_reference();
+            } else {
+                search.push_reference(&buffer[0]);
+            }
             let nc = c.take(BLOCK_FRAMES, &mut buffer)?;
-            search.push_candidate(&buffer[0]);
+            if nc == 0 {
+                search.end_candidate();
+            } else {
+                search.push_candidate(&buffer[0]);
+            }
             if nr == 0 && nc == 0 {
                 break;
             }
