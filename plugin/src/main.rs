@@ -1,5 +1,6 @@
 //! The `fieldglass` command-line program: `scan` checks a file (or the demo scene) offline and
-//! writes JSON and an HTML report; `demo` writes the demo scene to a WAV file.
+//! writes JSON and an HTML report; `compare` checks a delivery against its master;
+//! `demo` writes the demo scene to a WAV file.
 //!
 //! Exit codes: 0 done; 1 an output could not be written; 2 usage error or unreadable input;
 //! 3 a `--fail-on` threshold was met.

@@ -207,6 +207,10 @@ fn left_right_mirror() {
     );
     assert_no_channel_faults(&doc);
     assert_eq!(finding(&doc, "mirrored")["severity"], "error");
+    // --fail-on error: exit code 3, as for scan.
+    let out = pair.run(&["--fail-on", "error"]);
+    assert_eq!(out.status.code(), Some(3));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("mirrored"));
 }
 
 #[test]
@@ -426,10 +430,16 @@ fn different_sample_rates_are_an_error() {
 
 #[test]
 fn opus_round_trip_loses_detail_but_keeps_geometry() {
-    let ffmpeg = Command::new("ffmpeg").arg("-version").output();
-    if !ffmpeg.is_ok_and(|o| o.status.success()) {
+    // Needs ffmpeg with the libopus encoder and its native Opus decoder.
+    let codecs = Command::new("ffmpeg")
+        .args(["-hide_banner", "-encoders"])
+        .output();
+    let has_libopus = codecs.is_ok_and(|o| {
+        o.status.success() && String::from_utf8_lossy(&o.stdout).contains("libopus")
+    });
+    if !has_libopus {
         eprintln!(
-            "SKIPPED opus_round_trip_loses_detail_but_keeps_geometry: ffmpeg is not installed (apt-get install ffmpeg)"
+            "SKIPPED opus_round_trip_loses_detail_but_keeps_geometry: ffmpeg with libopus is not installed (apt-get install ffmpeg)"
         );
         return;
     }
