@@ -143,6 +143,51 @@ fn an_inverted_third_order_channel_is_inverted() {
 }
 
 #[test]
+fn a_whole_file_inversion_is_every_channel_inverted_not_a_mirror() {
+    let reference = demo(3);
+    let mut candidate: Vec<Vec<f32>> = reference
+        .iter()
+        .map(|c| c.iter().map(|v| -v).collect())
+        .collect();
+    // One channel flipped back: that one is not inverted.
+    candidate[6].iter_mut().for_each(|v| *v = -*v);
+    let s = compare(&reference, &candidate);
+    assert!(s.whole_inverted);
+    assert!(s.orientation.mirror.is_none() && s.orientation.largest_angle_deg() < 0.5);
+    let expected: Vec<usize> = (0..16).filter(|&i| i != 6).collect();
+    assert_eq!(s.inverted, expected);
+    assert!((s.channels[0].correlation.unwrap() + 1.0).abs() < 1e-6);
+    assert!((s.channels[6].correlation.unwrap() - 1.0).abs() < 1e-6);
+    assert!(s.swaps.is_empty());
+}
+
+#[test]
+fn an_inverted_w_alone_is_one_inverted_channel() {
+    let reference = demo(3);
+    let mut candidate = reference.clone();
+    candidate[0].iter_mut().for_each(|v| *v = -*v);
+    let s = compare(&reference, &candidate);
+    assert!(!s.whole_inverted);
+    assert!(s.orientation.mirror.is_none() && s.orientation.largest_angle_deg() < 0.5);
+    assert_eq!(s.inverted, vec![0]);
+}
+
+#[test]
+fn a_turned_and_inverted_delivery_is_both() {
+    let reference = demo(3);
+    let candidate: Vec<Vec<f32>> = transformed(&reference, &rotation_from_angles(-45.0, 20.0, 0.0))
+        .into_iter()
+        .map(|c| c.into_iter().map(|v| -v).collect())
+        .collect();
+    let s = compare(&reference, &candidate);
+    assert!(s.whole_inverted && s.orientation.mirror.is_none());
+    assert!(
+        (s.orientation.yaw_deg + 45.0).abs() < 1.0 && (s.orientation.pitch_deg - 20.0).abs() < 1.0
+    );
+    assert_eq!(s.inverted.len(), 16);
+}
+
+#[test]
 fn a_first_order_file_keeps_the_mirror_and_says_it_is_ambiguous() {
     let reference = demo(1);
     let mut candidate = reference.clone();

@@ -261,6 +261,23 @@ fn one_inverted_third_order_channel() {
 }
 
 #[test]
+fn whole_file_inversion_is_one_finding_not_a_mirror() {
+    let candidate: Vec<Vec<f32>> = master()
+        .iter()
+        .map(|c| c.iter().map(|v| -v).collect())
+        .collect();
+    let doc = Pair::new(&candidate).json();
+    assert_eq!(doc["rotation"]["whole_file_inverted"], true);
+    assert_eq!(doc["rotation"]["mirrored"], false);
+    assert_eq!(codes(&doc), vec!["polarity-inverted".to_string()]);
+    assert_eq!(
+        finding(&doc, "polarity-inverted")["channels"],
+        serde_json::json!((0..16).collect::<Vec<_>>())
+    );
+    assert!(f(&doc["alignment"]["correlation"]) < -0.999);
+}
+
+#[test]
 fn offset_of_1234_frames() {
     let candidate: Vec<Vec<f32>> = master()
         .iter()

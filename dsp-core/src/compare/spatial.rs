@@ -3,18 +3,24 @@
 //!
 //! 1. Orthogonal Procrustes on the first-order (dipole) cross-covariance gives a rotation,
 //!    possibly with a mirror ([`procrustes`]).
-//! 2. A first-order swap or inversion is geometrically a mirror or turn too, so with orders ≥ 2
-//!    the estimate is kept only if its SH transform predicts the higher orders at least as well
-//!    as no transform at all; otherwise the identity is used and the fault shows up per channel.
-//!    A first-order stream cannot tell them apart; [`SpatialComparison::first_order_only`] says so.
+//! 2. A first-order swap or inversion is geometrically a mirror or turn too, and a whole-file
+//!    polarity flip reads at first order as an up-down mirror turned by 180°. So four readings
+//!    are scored — the estimate or no transform, each with and without a whole-file flip (the
+//!    flip's estimate made on the flipped dipoles) — by how many channels then fail to match
+//!    themselves (correlation < 0.5), ties going to the better overall fit: the reading that
+//!    needs the fewest channel faults wins, and the faults left show per channel. With orders
+//!    ≥ 2 the higher orders decide; a first-order stream cannot tell a mirror from a swap, and
+//!    [`SpatialComparison::first_order_only`] says so.
 //! 3. With the chosen transform D (block-diagonal, [`ShRotation`]) the reference predicts the
 //!    candidate as p = D·r. Per candidate channel i and predicted channel j the correlation is
 //!    Σc_i·p_j / sqrt(Σc_i²·Σp_j²). A channel matches the predicted channel of largest |correlation|
 //!    (itself unless another is clearly better); two channels that match each other are a swap,
 //!    a channel that matches itself with a negative correlation is inverted.
+//! 4. When the flipped reading wins, everything is measured on the flipped-back candidate and
+//!    every channel not flipped a second time is reported inverted.
 
 use super::covariance::PairCovariance;
-use super::orientation::{IDENTITY, Orientation, procrustes};
+use super::orientation::{Orientation, procrustes};
 use crate::sh::{Matrix3, ShRotation, order_degree, order_of_channel_count};
 
 /// |correlation| two channels must reach to be called a swap, or an inverted channel's
@@ -68,9 +74,6 @@ pub struct SpatialComparison {
     pub first_order_only: bool,
     /// Cosine similarity of the first-order part under the applied transform.
     pub fit: Option<f64>,
-    /// Cosine similarity over orders ≥ 2 with the estimate and without any transform.
-    pub higher_order_fit_estimate: Option<f64>,
-    pub higher_order_fit_identity: Option<f64>,
     pub orders: Vec<OrderComparison>,
     /// Indexed by candidate ACN.
     pub channels: Vec<ChannelComparison>,
@@ -78,6 +81,9 @@ pub struct SpatialComparison {
     pub swaps: Vec<(usize, usize)>,
     /// Candidate ACNs that match themselves with inverted polarity.
     pub inverted: Vec<usize>,
+    /// The candidate as a whole is inverted (W anti-correlated); `orders[].rotation_fit`
+    /// and `fit` are then measured on the flipped-back candidate.
+    pub whole_inverted: bool,
     /// Per candidate ACN, the transformed reference ACN it is compared with downstream (its
     /// swap partner, or itself).
     pub expected: Vec<usize>,
@@ -93,7 +99,8 @@ struct Predicted {
 }
 
 impl Predicted {
-    fn new(m: &PairCovariance, d: &ShRotation) -> Self {
+    /// `sign` = −1 flips the candidate (a whole-file inversion).
+    fn new(m: &PairCovariance, d: &ShRotation, sign: f64) -> Self {
         let k = m.channels();
         let block_range = |acn: usize| {
             let l = order_degree(acn).0;
@@ -104,7 +111,11 @@ impl Predicted {
         for j in 0..k {
             let range = block_range(j);
             for i in 0..k {
-                cp[i * k + j] = range.clone().map(|q| m.cr(i, q) * d.element(j, q)).sum();
+                cp[i * k + j] = sign
+                    * range
+                        .clone()
+                        .map(|q| m.cr(i, q) * d.element(j, q))
+                        .sum::<f64>();
             }
             let mut energy = 0.0;
             for a in range.clone() {
@@ -130,6 +141,48 @@ impl Predicted {
     }
 }
 
+/// One reading of the candidate: a whole-file sign and a transform, scored by how many
+/// channels fail to match themselves under it (correlation below [`MATCH_CORRELATION`]).
+struct Hypothesis {
+    sign: f64,
+    orientation: Orientation,
+    d: ShRotation,
+    predicted: Predicted,
+    faults: usize,
+    fit: f64,
+}
+
+impl Hypothesis {
+    fn new(
+        m: &PairCovariance,
+        order: usize,
+        sign: f64,
+        orientation: Orientation,
+        floor: f64,
+    ) -> Self {
+        let d = ShRotation::new(order, &orientation.transform);
+        let predicted = Predicted::new(m, &d, sign);
+        let k = m.channels();
+        let faults = (0..k)
+            .filter(|&i| {
+                let (c, p) = (m.cc(i, i), predicted.pp_diag[i]);
+                c > floor
+                    && p > floor
+                    && predicted.cp[i * k + i] / (c * p).sqrt() < MATCH_CORRELATION
+            })
+            .count();
+        let fit = predicted.fit(m, 0..k).unwrap_or(-1.0);
+        Self {
+            sign,
+            orientation,
+            d,
+            predicted,
+            faults,
+            fit,
+        }
+    }
+}
+
 fn ratio_db(numerator: f64, denominator: f64) -> Option<f64> {
     (numerator > 0.0 && denominator > 0.0).then(|| 10.0 * (numerator / denominator).log10())
 }
@@ -144,30 +197,51 @@ pub fn compare_spatial(m: &PairCovariance) -> SpatialComparison {
     let order = order_of_channel_count(k)
         .filter(|&o| o >= 1)
         .expect("compare_spatial needs a full order ≥ 1");
+    let loudest = (0..k)
+        .map(|i| m.cc(i, i).max(m.rr(i, i)))
+        .fold(0.0, f64::max);
+    let floor = loudest * SILENT_FRACTION;
     // Dipole cross-covariance in x y z (ACN 3, 1, 2).
     const ACN_OF_AXIS: [usize; 3] = [3, 1, 2];
-    let dipole: Matrix3 =
-        std::array::from_fn(|a| std::array::from_fn(|b| m.cr(ACN_OF_AXIS[a], ACN_OF_AXIS[b])));
-    let first_order_estimate = procrustes(&dipole).map(|q| Orientation::from_transform(&q));
-    let estimate = first_order_estimate.unwrap_or_else(Orientation::identity);
-    let estimate_d = ShRotation::new(order, &estimate.transform);
-    let estimate_predicted = Predicted::new(m, &estimate_d);
-    let (mut estimate_rejected, mut higher_estimate, mut higher_identity) = (false, None, None);
-    let (orientation, d, predicted) = if order >= 2 {
-        let identity_d = ShRotation::new(order, &IDENTITY);
-        let identity_predicted = Predicted::new(m, &identity_d);
-        let higher = 4..k;
-        higher_estimate = estimate_predicted.fit(m, higher.clone());
-        higher_identity = identity_predicted.fit(m, higher);
-        if higher_identity.unwrap_or(-1.0) > higher_estimate.unwrap_or(-1.0) + 1e-12 {
-            estimate_rejected = true;
-            (Orientation::identity(), identity_d, identity_predicted)
-        } else {
-            (estimate, estimate_d, estimate_predicted)
+    let mut hypotheses = Vec::with_capacity(4);
+    let mut estimates = [None, None];
+    for (slot, sign) in [1.0, -1.0].into_iter().enumerate() {
+        let dipole: Matrix3 = std::array::from_fn(|a| {
+            std::array::from_fn(|b| sign * m.cr(ACN_OF_AXIS[a], ACN_OF_AXIS[b]))
+        });
+        let estimate = procrustes(&dipole).map(|q| Orientation::from_transform(&q));
+        estimates[slot] = estimate;
+        if let Some(estimate) = estimate {
+            hypotheses.push(Hypothesis::new(m, order, sign, estimate, floor));
         }
-    } else {
-        (estimate, estimate_d, estimate_predicted)
-    };
+        hypotheses.push(Hypothesis::new(
+            m,
+            order,
+            sign,
+            Orientation::identity(),
+            floor,
+        ));
+    }
+    // Fewest channels that do not match themselves; then the best overall fit; then the order
+    // above (no whole-file inversion first, the estimate before the identity).
+    let chosen = hypotheses
+        .into_iter()
+        .enumerate()
+        .min_by(|(ia, a), (ib, b)| {
+            a.faults
+                .cmp(&b.faults)
+                .then(b.fit.total_cmp(&a.fit))
+                .then(ia.cmp(ib))
+        })
+        .map(|(_, h)| h)
+        .expect("the identity is always a hypothesis");
+    let sign = chosen.sign;
+    let whole_inverted = sign < 0.0;
+    let first_order_estimate = estimates[usize::from(whole_inverted)];
+    let orientation = chosen.orientation;
+    let estimate_rejected = orientation == Orientation::identity()
+        && first_order_estimate.is_some_and(|e| e.mirror.is_some() || e.largest_angle_deg() >= 0.5);
+    let (d, predicted) = (chosen.d, chosen.predicted);
 
     let orders = (0..=order)
         .map(|l| {
@@ -182,10 +256,6 @@ pub fn compare_spatial(m: &PairCovariance) -> SpatialComparison {
         })
         .collect();
 
-    let loudest = (0..k)
-        .map(|i| m.cc(i, i).max(predicted.pp_diag[i]))
-        .fold(0.0, f64::max);
-    let floor = loudest * SILENT_FRACTION;
     let correlation = |i: usize, j: usize| -> Option<f64> {
         let (c, p) = (m.cc(i, i), predicted.pp_diag[j]);
         (c > floor && p > floor).then(|| predicted.cp[i * k + j] / (c * p).sqrt())
@@ -217,18 +287,22 @@ pub fn compare_spatial(m: &PairCovariance) -> SpatialComparison {
             expected.swap(i, j);
         }
     }
+    // Inverted against the (possibly flipped-back) candidate: below −0.5 with itself; in a
+    // whole-file inversion the channels that are *not* flipped a second time are the inverted
+    // ones.
     let inverted: Vec<usize> = (0..k)
         .filter(|&i| expected[i] == i)
-        .filter(|&i| matches!(best[i], Some((j, v)) if j == i && v <= -MATCH_CORRELATION))
+        .filter(|&i| matches!(best[i], Some((j, v)) if j == i && sign * v <= -MATCH_CORRELATION))
         .collect();
+    // Correlations are reported against the candidate as it is.
     let channels = (0..k)
         .map(|i| ChannelComparison {
             acn: i,
             gain_db: ratio_db(m.cc(i, i), predicted.pp_diag[expected[i]]),
-            correlation: correlation(i, i),
+            correlation: correlation(i, i).map(|v| sign * v),
             polarity_inverted: inverted.contains(&i),
             best_match_acn: best[i].map(|b| b.0),
-            best_match_correlation: best[i].map(|b| b.1),
+            best_match_correlation: best[i].map(|b| sign * b.1),
         })
         .collect();
     SpatialComparison {
@@ -238,12 +312,11 @@ pub fn compare_spatial(m: &PairCovariance) -> SpatialComparison {
         orientation,
         estimate_rejected,
         first_order_only: order == 1,
-        higher_order_fit_estimate: higher_estimate,
-        higher_order_fit_identity: higher_identity,
         orders,
         channels,
         swaps,
         inverted,
+        whole_inverted,
         expected,
         rotation: d,
     }

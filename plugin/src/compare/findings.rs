@@ -160,7 +160,33 @@ pub fn compare_findings(result: &CompareResult) -> Vec<CompareFinding> {
             .collect();
         out.push(f);
     }
-    for &i in &spatial.inverted {
+    let compared = spatial
+        .channels
+        .iter()
+        .filter(|c| c.correlation.is_some())
+        .count();
+    if spatial.whole_inverted && spatial.inverted.len() == compared {
+        let mut f = finding(
+            Severity::Error,
+            CompareCode::PolarityInverted,
+            format!(
+                "Every channel is inverted: the whole delivery has its polarity flipped (W correlation {:.2}).",
+                result.alignment.correlation.unwrap_or(f64::NAN)
+            ),
+        );
+        f.channels = spatial
+            .inverted
+            .iter()
+            .filter_map(|&acn| result.candidate_file_channels[acn])
+            .collect();
+        out.push(f);
+    }
+    let one_by_one = if spatial.whole_inverted && spatial.inverted.len() == compared {
+        &[][..]
+    } else {
+        &spatial.inverted[..]
+    };
+    for &i in one_by_one {
         let mut f = finding(
             Severity::Error,
             CompareCode::PolarityInverted,

@@ -74,6 +74,9 @@ pub struct Rotation {
     pub first_order_estimate_rejected: bool,
     /// First order only: a turn by quarter turns or a mirror equals swapped/inverted channels.
     pub first_order_only: bool,
+    /// The whole candidate has its polarity flipped; the transform and fits are those of the
+    /// flipped-back candidate.
+    pub whole_file_inverted: bool,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -246,6 +249,7 @@ pub fn document(result: &CompareResult) -> CompareDocument {
             fit: rounded(spatial.fit, 4),
             first_order_estimate_rejected: spatial.estimate_rejected,
             first_order_only: spatial.first_order_only,
+            whole_file_inverted: spatial.whole_inverted,
         },
         orders: spatial
             .orders
