@@ -7,8 +7,9 @@
 //!   `Rotation` and against direct re-encoding at rotated directions). Recovered angles within
 //!   1° (the bound).
 //! - Gain: 20·log10(0.5) = −6.02 dB (definition of the decibel). BS.1770 loudness of a signal
-//!   scaled by g changes by exactly 20·log10|g| LU (the K-weighting is linear and the relative
-//!   gate moves with the programme: ITU-R BS.1770-4 §2, Annex 1).
+//!   scaled by g changes by exactly 20·log10|g| LU: this follows from the measure's definition in
+//!   ITU-R BS.1770-4 (linear K-weighting, a relative gate that moves with the programme; the
+//!   absolute −70 LUFS gate is far below this programme).
 //! - Swaps, inversions, offsets, dropped orders: by construction of the files.
 //! - Codec: Debian's ffmpeg with libopus, Ogg Opus channel mapping family 2 (RFC 8486), decoded
 //!   with ffmpeg's native Opus decoder (`-c:a opus`). A lossy codec at a moderate rate replaces

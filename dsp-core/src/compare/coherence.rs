@@ -227,16 +227,18 @@ mod tests {
         let copy = meter.figures(0..1, 0);
         assert!((copy.coherence.unwrap() - 1.0).abs() < 1e-6);
         assert!((copy.level_change_db.unwrap() + 6.0206).abs() < 1e-3);
-        // Two independent white noises: the Welch coherence estimate is biased towards 1/K
-        // for K averaged frames (Carter, Knapp & Nuttall 1973); K ≈ 92 here.
+        // Two independent white noises: the Welch coherence estimate is biased towards about
+        // 1/K for K averaged frames (Carter, Knapp & Nuttall 1973; cited from memory); K ≈ 92
+        // here, with overlap making the frames partly dependent.
         let independent = meter.figures(1..2, 0).coherence.unwrap();
         assert!(independent < 0.03, "{independent}");
     }
 
     #[test]
     fn half_noise_gives_the_expected_coherence() {
-        // c = s + n with independent equal-power s, n: coherence = 1/2 (textbook, e.g.
-        // Bendat & Piersol, "Random Data", coherence of a measurement with output noise).
+        // c = s + n with independent equal-power s, n: coherence = S_ss/(S_ss + S_nn) = 1/2
+        // (the textbook coherence of a measurement with uncorrelated output noise, e.g. Bendat &
+        // Piersol, "Random Data"; cited from memory, and it follows from the definition).
         let s = noise(96_000, 3);
         let n = noise(96_000, 4);
         let c: Vec<f32> = s.iter().zip(&n).map(|(a, b)| a + b).collect();

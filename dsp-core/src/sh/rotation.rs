@@ -2,8 +2,9 @@
 //! matrix `D(R)` with `Y(R·u) = D(R)·Y(u)` for every direction `u` (ACN order, no Condon–Shortley
 //! phase). One block per order; a rotation never mixes orders.
 //!
-//! The blocks are built by the recursion of Ivanic & Ruedenberg (J. Phys. Chem. 100, 6342, 1996,
-//! with the corrections of their 1998 erratum), which derives order l from order l−1 and the
+//! The blocks are built by the recursion of Ivanic & Ruedenberg (J. Phys. Chem. 1996, with the
+//! corrections of their 1998 erratum; citation and coefficients from memory, which is why the
+//! tests check the result against direct re-encoding), which derives order l from order l−1 and the
 //! order-1 block. That recursion is stated for orthonormal real harmonics; SN3D differs from
 //! them by one factor per order, which cancels in `D`, so the same blocks serve SN3D and N3D.
 //!
