@@ -41,6 +41,7 @@
 //!   by `render`.
 
 pub mod beam;
+pub mod compare;
 pub mod covariance;
 pub mod encoder;
 pub mod engine;

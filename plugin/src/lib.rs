@@ -7,6 +7,7 @@
 pub mod adm;
 pub mod ambisonic_buses;
 pub mod audio;
+pub mod compare;
 pub mod editor;
 pub mod look;
 pub mod opus;

@@ -1,5 +1,6 @@
 //! The `fieldglass` command-line program: `scan` checks a file (or the demo scene) offline and
-//! writes JSON and an HTML report; `demo` writes the demo scene to a WAV file.
+//! writes JSON and an HTML report; `compare` checks a delivery against its master;
+//! `demo` writes the demo scene to a WAV file.
 //!
 //! Exit codes: 0 done; 1 an output could not be written; 2 usage error or unreadable input;
 //! 3 a `--fail-on` threshold was met.
@@ -33,6 +34,9 @@ struct Cli {
 enum Command {
     /// Scan a WAV/RF64/BW64 or Ogg Opus file (or the demo scene) and report format, levels, loudness and sources.
     Scan(ScanArgs),
+    /// Compare a delivery (CANDIDATE) with its master (REFERENCE): offset, rotation or mirror,
+    /// channel faults, level and detail lost per order.
+    Compare(CompareArgs),
     /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
     Demo(DemoArgs),
     /// Build the batch index page from JSON lines written by `scan --json-lines` (e.g. on
@@ -261,6 +265,50 @@ struct IndexArgs {
 }
 
 #[derive(Args, Debug)]
+struct CompareArgs {
+    /// REFERENCE then CANDIDATE (WAV, RF64 or BW64); with --demo only CANDIDATE.
+    #[arg(value_name = "REFERENCE CANDIDATE", num_args = 1..=2, required = true)]
+    files: Vec<PathBuf>,
+    /// Use the built-in demo scene as the reference.
+    #[arg(long)]
+    demo: bool,
+    /// Order of the demo reference.
+    #[arg(long, default_value_t = 3, requires = "demo", value_parser = clap::value_parser!(u32).range(1..=7))]
+    demo_order: u32,
+    /// Length of the demo reference, seconds.
+    #[arg(long, default_value_t = 20.0, requires = "demo")]
+    demo_seconds: f64,
+    /// How the reference's channels are ordered and normalised [default: acn-sn3d, or fuma
+    /// for a file that declares the AMB B-format]
+    #[arg(long, value_enum)]
+    assume_reference: Option<FormatArg>,
+    /// How the candidate's channels are ordered and normalised (same default).
+    #[arg(long, value_enum)]
+    assume_candidate: Option<FormatArg>,
+    /// Largest offset between the files searched, seconds.
+    #[arg(long, default_value_t = 2.0, value_name = "SECONDS")]
+    max_offset: f64,
+    /// Report `rotated` from this angle on, degrees.
+    #[arg(long, default_value_t = 2.0, value_name = "DEG")]
+    rotation_threshold: f64,
+    /// Report `level-change` from this change of W loudness (or of an order relative to W) on, LU.
+    #[arg(long, default_value_t = 1.0, value_name = "LU")]
+    level_threshold: f64,
+    /// Report `detail-lost` when an order's coherence is below this (0-1).
+    #[arg(long, default_value_t = 0.9, value_name = "X")]
+    coherence_threshold: f64,
+    /// Write the JSON result to PATH ("-" = stdout, replacing the summary).
+    #[arg(long, value_name = "PATH|-")]
+    json: Option<String>,
+    /// Write report.html, its pictures and compare.json into DIR.
+    #[arg(long, value_name = "DIR")]
+    report: Option<PathBuf>,
+    /// Exit with code 3 if any finding is at least this severe.
+    #[arg(long, value_enum)]
+    fail_on: Option<FailOn>,
+}
+
+#[derive(Args, Debug)]
 struct DemoArgs {
     /// Output WAV file.
     #[arg(long, value_name = "FILE.wav")]
@@ -461,6 +509,114 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
     Ok(ExitCode::SUCCESS)
 }
 
+/// Writes `text` to the file `target`, or to stdout for "-".
+fn write_json(target: &str, text: &str) -> Result<(), CliError> {
+    if target == "-" {
+        let mut stdout = std::io::stdout().lock();
+        stdout
+            .write_all(text.as_bytes())
+            .and_then(|_| stdout.flush())
+            .map_err(|e| CliError::output(format!("cannot write the JSON to stdout: {e}")))
+    } else {
+        std::fs::write(target, text)
+            .map_err(|e| CliError::output(format!("cannot write '{target}': {e}")))
+    }
+}
+
+fn run_compare(args: CompareArgs) -> Result<ExitCode, CliError> {
+    use fieldglass::compare::{self, CompareOptions, Thresholds};
+    let (reference, candidate) = match (args.demo, args.files.as_slice()) {
+        (true, [candidate]) => {
+            if !(args.demo_seconds.is_finite()
+                && args.demo_seconds > 0.0
+                && args.demo_seconds <= 86_400.0)
+            {
+                return Err(CliError::input(format!(
+                    "--demo-seconds {} is outside 0 … 86400 s",
+                    args.demo_seconds
+                )));
+            }
+            (
+                ScanInput::Demo {
+                    order: args.demo_order as usize,
+                    seconds: args.demo_seconds,
+                    sample_rate_hz: 48_000.0,
+                    format: AmbiFormat::ACN_SN3D,
+                },
+                ScanInput::File(candidate.clone()),
+            )
+        }
+        (false, [reference, candidate]) => (
+            ScanInput::File(reference.clone()),
+            ScanInput::File(candidate.clone()),
+        ),
+        (true, _) => {
+            return Err(CliError::input(
+                "compare --demo takes one file: the CANDIDATE",
+            ));
+        }
+        (false, _) => {
+            return Err(CliError::input(
+                "compare needs REFERENCE and CANDIDATE (or --demo and CANDIDATE)",
+            ));
+        }
+    };
+    let thresholds_valid = (0.0..=1.0).contains(&args.coherence_threshold)
+        && args.rotation_threshold >= 0.0
+        && args.level_threshold >= 0.0;
+    if !thresholds_valid {
+        return Err(CliError::input(
+            "thresholds: --coherence-threshold in 0-1, --rotation-threshold and --level-threshold ≥ 0",
+        ));
+    }
+    let options = CompareOptions {
+        reference_format: args.assume_reference.map(|f| f.format()),
+        candidate_format: args.assume_candidate.map(|f| f.format()),
+        max_offset_s: args.max_offset,
+        thresholds: Thresholds {
+            rotation_deg: args.rotation_threshold,
+            level_change_lu: args.level_threshold,
+            coherence: args.coherence_threshold,
+        },
+        progress: true,
+    };
+    let result = compare::compare(&reference, &candidate, options)?;
+    let json_to_stdout = args.json.as_deref() == Some("-");
+    if let Some(target) = args.json.as_deref() {
+        write_json(target, &compare::json::to_json_string(&result))?;
+    }
+    let report = match &args.report {
+        Some(dir) => Some(compare::report::write_report(&result, dir)?),
+        None => None,
+    };
+    if !json_to_stdout {
+        let shown = report.as_ref().map(|p| p.display().to_string());
+        print!("{}", compare::summary::summary(&result, shown.as_deref()));
+    }
+    if let Some(fail_on) = args.fail_on {
+        let threshold = match fail_on {
+            FailOn::Warning => Severity::Warning,
+            FailOn::Error => Severity::Error,
+        };
+        let hits: Vec<&str> = result
+            .findings
+            .iter()
+            .filter(|f| f.severity >= threshold)
+            .map(|f| f.code.label())
+            .collect();
+        if !hits.is_empty() {
+            eprintln!(
+                "fieldglass: {} finding(s) at or above '{}': {}",
+                hits.len(),
+                threshold.label(),
+                hits.join(", ")
+            );
+            return Ok(ExitCode::from(EXIT_FAIL_ON));
+        }
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
 fn run_demo(args: DemoArgs) -> Result<ExitCode, CliError> {
     let options = DemoOptions {
         order: args.order as usize,
@@ -487,6 +643,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let outcome = match cli.command {
         Command::Scan(args) => run_scan(args),
+        Command::Compare(args) => run_compare(args),
         Command::Demo(args) => run_demo(args),
         Command::Index(args) => run_index(args),
         #[cfg(feature = "standalone")]

@@ -2,8 +2,10 @@
 //! conventions), evaluated by stable recurrences so that high orders never form large factorials.
 
 mod eval;
+pub mod rotation;
 
 pub use eval::{ShEvaluator, sh_sn3d, sn3d_legendre, sn3d_legendre_sin_cos};
+pub use rotation::{Matrix3, ShRotation};
 
 /// Highest order the SH evaluator supports. Recurrences are stable far beyond this; the limit
 /// only bounds table sizes.

@@ -221,7 +221,7 @@ impl ScanResult {
 type RoutedTracks = (Vec<usize>, Vec<Vec<f32>>);
 
 /// Where blocks come from.
-enum Source {
+pub(crate) enum Source {
     File {
         reader: WavReader<std::io::BufReader<std::fs::File>>,
         /// For a FuMa mixed-order set: the expander and the file-order buffers it reads from.
@@ -239,7 +239,7 @@ enum Source {
 }
 
 impl Source {
-    fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
+    pub(crate) fn read(&mut self, buffers: &mut [Vec<f32>], name: &str) -> Result<usize, CliError> {
         match self {
             Source::File {
                 reader,
@@ -305,7 +305,10 @@ fn describe_sample_format(format: SampleFormat, bits: u16) -> String {
     }
 }
 
-fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputInfo), CliError> {
+pub(crate) fn open(
+    input: &ScanInput,
+    options: &mut ScanOptions,
+) -> Result<(Source, InputInfo), CliError> {
     match input {
         ScanInput::File(path) if opus::file_is_ogg(path) => open_opus(path, options),
         ScanInput::File(path) => {
