@@ -340,7 +340,18 @@ pub fn draw(
     snapshot: Option<&Snapshot>,
     host: &mut dyn EditorHost,
 ) {
-    ui.heading("Sphere");
+    ui.horizontal(|ui| {
+        ui.heading("Sphere");
+        if let Some(s) = snapshot.filter(|s| s.map_format != s.assumed_format) {
+            ui.label(
+                egui::RichText::new(format!(
+                    "Map read as {} for comparison",
+                    s.map_format.human_name()
+                ))
+                .color(theme::WARNING),
+            );
+        }
+    });
     draw_controls(ui, snapshot, host);
     let settings = host.settings();
     let Some(snapshot) = snapshot else {
