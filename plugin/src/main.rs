@@ -5,7 +5,9 @@
 //! 3 a `--fail-on` threshold was met.
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
+use fieldglass::picture::load_picture;
 use fieldglass::scan::demo::{DemoOptions, write_demo};
+use fieldglass::scan::report_html::ReportPicture;
 use fieldglass::scan::{
     AssumedSource, CliError, EXIT_FAIL_ON, ScanInput, ScanOptions, json, report_html, scan, summary,
 };
@@ -207,6 +209,29 @@ struct ScanArgs {
     /// Exit with code 3 if any finding is at least this severe.
     #[arg(long, value_enum)]
     fail_on: Option<FailOn>,
+    /// A still of the video (PNG or JPEG, equirectangular 2:1) behind the report's maps.
+    #[arg(long, value_name = "FILE", requires = "report")]
+    picture: Option<PathBuf>,
+    /// How much of the picture shows through the maps, 0 (maps only) … 1 (picture only).
+    #[arg(long, value_name = "0…1", default_value_t = 0.5, requires = "picture", value_parser = parse_opacity)]
+    picture_opacity: f64,
+    /// Azimuth the picture's centre is turned to, degrees (positive = to the left).
+    #[arg(long, value_name = "DEG", default_value_t = 0.0, requires = "picture", allow_negative_numbers = true, value_parser = parse_yaw)]
+    picture_yaw: f64,
+}
+
+fn parse_opacity(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if (0.0..=1.0).contains(&v) => Ok(v),
+        _ => Err(format!("'{text}' is not an opacity from 0 to 1")),
+    }
+}
+
+fn parse_yaw(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v.abs() <= 360.0 => Ok(v),
+        _ => Err(format!("'{text}' is not an angle from -360 to 360 degrees")),
+    }
 }
 
 #[derive(Args, Debug)]
@@ -271,6 +296,17 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         (Some(path), false) => ScanInput::File(path.clone()),
         (None, false) => return Err(CliError::input("scan needs a FILE or --demo")),
     };
+    // A missing or broken picture stops the command before the scan starts.
+    let picture = match &args.picture {
+        Some(path) => Some(ReportPicture {
+            name: path.display().to_string(),
+            picture: load_picture(path, report_html::PICTURE_MAX_SIDE)
+                .map_err(|e| CliError::input(e.to_string()))?,
+            yaw_deg: args.picture_yaw,
+            opacity: args.picture_opacity,
+        }),
+        None => None,
+    };
     let defaults = ScanOptions::default();
     let options = ScanOptions {
         assumed: args.assume.map_or(AmbiFormat::ACN_SN3D, |a| a.format()),
@@ -300,7 +336,7 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         }
     }
     let report = match &args.report {
-        Some(dir) => Some(report_html::write_report(&result, dir)?),
+        Some(dir) => Some(report_html::write_report(&result, dir, picture.as_ref())?),
         None => None,
     };
     if !json_to_stdout {

@@ -726,12 +726,11 @@ fn demo_written_then_scanned_and_reported() {
     );
     assert!(stdout.contains("LUFS"), "{stdout}");
     let html = std::fs::read_to_string(report.join("report.html")).unwrap();
-    assert!(html.contains("data:image/png;base64,"), "pictures embedded");
+    assert_report_pictures_are_svg(&html);
     assert!(
-        !html.contains("http://") && !html.contains("https://"),
-        "no external resources"
+        html.contains(fieldglass_dsp::wording::CAUTION),
+        "the one caution"
     );
-    assert!(html.contains("does not certify"), "cautions shown");
     for name in [
         "map-full.png",
         "map-low.png",
@@ -828,4 +827,326 @@ fn amb_file_with_a_fuma_horizontal_set_is_read_as_fuma_at_second_order() {
     let doc = scan_json(&path, &["--assume", "acn-sn3d"]);
     assert_eq!(doc["assumed"]["source"], "option");
     assert_eq!(doc["assumed"]["order"], 1);
+}
+
+/// The report's pictures are inline SVG whose labels are text the browser draws; only the heat
+/// maps are rasters, embedded as PNG data URIs inside the SVG; nothing is fetched.
+fn assert_report_pictures_are_svg(html: &str) {
+    let svgs: Vec<&str> = html
+        .split("<svg")
+        .skip(1)
+        .map(|rest| &rest[..rest.find("</svg>").expect("closed svg")])
+        .collect();
+    // Four band maps, the timeline and the order balance.
+    assert_eq!(svgs.len(), 6, "inline pictures");
+    for svg in &svgs {
+        assert!(svg.contains("<text"), "labels are text");
+    }
+    let maps: Vec<&&str> = svgs
+        .iter()
+        .filter(|svg| svg.contains("<image") && svg.contains("href=\"data:image/png;base64,"))
+        .collect();
+    assert_eq!(maps.len(), 4, "each band's heat map embedded in its SVG");
+    for map in &maps {
+        for word in ["front", "left", "right", "back"] {
+            assert!(map.contains(&format!(">{word}</text>")), "{word}");
+        }
+    }
+    assert!(!html.contains("<img"), "no picture outside the SVG");
+    // The only URL is the SVG namespace, which is a name, not a fetch.
+    let without_namespace = html.replace("xmlns=\"http://www.w3.org/2000/svg\"", "");
+    assert!(
+        !without_namespace.contains("http://") && !without_namespace.contains("https://"),
+        "no external resources"
+    );
+}
+
+/// Words a person reads for a channel louder than W, other than the one name.
+const OTHER_NAMES_FOR_LOUDER_THAN_W: [&str; 5] = [
+    "over W",
+    "Louder than W",
+    "over-omni",
+    "over omni",
+    "Over W",
+];
+
+#[test]
+fn louder_than_w_has_one_name_in_summary_and_report() {
+    // First order SN3D, three independent sources (one alone would make all four channels
+    // coherent, which reads as capsule signals); channel 2 (Y, ACN 1) boosted ×4 (+12 dB), so
+    // its SN3D level exceeds W's by more than the 0.5 dB tolerance: by construction.
+    let dir = tmp();
+    let mut planes = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[
+            (Direction::new(30.0, 20.0), 0.2),
+            (Direction::new(-100.0, -10.0), 0.15),
+            (Direction::new(150.0, 40.0), 0.12),
+        ],
+        RATE as usize,
+    );
+    for v in planes[1].iter_mut() {
+        *v *= 4.0;
+    }
+    let path = dir.path().join("boosted-y.wav");
+    write_float(&path, &planes);
+    let doc = scan_json(&path, &[]);
+    let finding = doc["findings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["code"] == "over-omni")
+        .unwrap_or_else(|| panic!("the JSON code stays over-omni: {}", doc["findings"]));
+    assert_eq!(finding["channels"], serde_json::json!([1]));
+
+    let report = dir.path().join("report");
+    let out = run(&[
+        "scan",
+        path.to_str().unwrap(),
+        "--report",
+        report.to_str().unwrap(),
+    ]);
+    assert!(out.status.success());
+    let stdout = String::from_utf8_lossy(&out.stdout).to_string();
+    let html = std::fs::read_to_string(report.join("report.html")).unwrap();
+    for (name, text) in [("summary", &stdout), ("report", &html)] {
+        assert!(
+            text.contains("channel 2 (ACN 1) is louder than W"),
+            "{name}: {text}"
+        );
+        for other in OTHER_NAMES_FOR_LOUDER_THAN_W {
+            assert!(!text.contains(other), "{name} says {other:?}");
+        }
+    }
+}
+
+#[test]
+fn findings_on_a_fuma_file_name_file_channels_with_their_acn() {
+    // Second-order FuMa, file order W X Y Z R S T U V (Furse-Malham letter order). File
+    // channel 5 is R, degree 2 order 0: ACN = n(n+1)+m = 6. Killing it must read
+    // "channel 5 (ACN 6)", not channel 7 and not ACN 4.
+    let dir = tmp();
+    let mut planes = encode(
+        2,
+        AmbiFormat::FUMA,
+        &[
+            (Direction::new(30.0, 20.0), 0.3),
+            (Direction::new(-110.0, -25.0), 0.2),
+        ],
+        RATE as usize,
+    );
+    planes[4].fill(0.0);
+    let path = dir.path().join("fuma-dead-r.wav");
+    write_float(&path, &planes);
+    let doc = scan_json(&path, &["--assume", "fuma"]);
+    assert_eq!(doc["channels"][4]["acn"], 6);
+    let silent = doc["findings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["code"] == "silent-channel")
+        .expect("silent channel found");
+    assert_eq!(
+        silent["channels"],
+        serde_json::json!([4]),
+        "0-based in JSON"
+    );
+    assert_eq!(
+        silent["message"],
+        "channel 5 (ACN 6) carries no signal while W does"
+    );
+    let out = run(&["scan", path.to_str().unwrap(), "--assume", "fuma"]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("channel 5 (ACN 6)"), "{stdout}");
+}
+
+#[test]
+fn findings_on_a_fuma_horizontal_set_name_the_file_channel() {
+    // FuMa W X Y U V (5 file channels) is analysed as second order with R, S, T, Z absent.
+    // File channel 4 is U, degree 2 order 2: ACN 8. Killed, it must be named by its place in
+    // the file (4), not in the expanded second-order layout (8).
+    let dir = tmp();
+    let full = encode(
+        2,
+        AmbiFormat::FUMA,
+        &[
+            (Direction::new(30.0, 0.0), 0.3),
+            (Direction::new(-120.0, 0.0), 0.2),
+        ],
+        RATE as usize,
+    );
+    let mut planes: Vec<Vec<f32>> = [0, 1, 2, 7, 8].iter().map(|&k| full[k].clone()).collect();
+    planes[3].fill(0.0);
+    let path = dir.path().join("horizontal-dead-u.amb");
+    let mut writer = WavWriter::create_b_format(
+        &path,
+        spec(5, 32, SampleFormat::Float),
+        WriterOptions::default(),
+    )
+    .unwrap();
+    let refs: Vec<&[f32]> = planes.iter().map(|p| p.as_slice()).collect();
+    writer.write_planar(&refs).unwrap();
+    writer.finalize().unwrap();
+    let doc = scan_json(&path, &[]);
+    assert_eq!(doc["input"]["mixed_order_set"], "WXYUV");
+    let silent = doc["findings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["code"] == "silent-channel")
+        .unwrap_or_else(|| panic!("silent channel found: {}", doc["findings"]));
+    assert_eq!(silent["channels"], serde_json::json!([3]));
+    assert_eq!(
+        silent["message"],
+        "channel 4 (ACN 8) carries no signal while W does"
+    );
+}
+
+#[test]
+fn the_readme_carries_the_one_caution() {
+    let readme = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/../README.md"))
+        .expect("README next to the workspace");
+    let words = |text: &str| text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        words(&readme).contains(fieldglass_dsp::wording::CAUTION),
+        "README's caution differs from wording::CAUTION"
+    );
+}
+
+/// RGB of pixel (x, y) of a PNG file written by the report (8-bit RGB).
+fn png_pixel(path: &Path, x: usize, y: usize) -> [u8; 3] {
+    let decoder = png::Decoder::new(std::fs::File::open(path).unwrap());
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    assert_eq!(info.color_type, png::ColorType::Rgb);
+    let i = 3 * (y * info.width as usize + x);
+    [buf[i], buf[i + 1], buf[i + 2]]
+}
+
+/// Pixel of the report's map picture at a direction: 2 pixels per degree, azimuth +180° at the
+/// left edge of the map area (the layout of `charts::map_drawing`).
+fn map_pixel(path: &Path, azimuth_deg: f64, elevation_deg: f64) -> [u8; 3] {
+    use fieldglass::scan::charts::{MAP_LEFT, MAP_TOP};
+    let x = MAP_LEFT + (180.0 - azimuth_deg) * 2.0;
+    let y = MAP_TOP + (90.0 - elevation_deg) * 2.0;
+    png_pixel(path, x as usize, y as usize)
+}
+
+#[test]
+fn picture_behind_the_report_maps_with_yaw_and_opacity() {
+    let dir = tmp();
+    let planes = encode(
+        1,
+        AmbiFormat::ACN_SN3D,
+        &[(Direction::new(-30.0, 0.0), 0.3)],
+        RATE as usize / 2,
+    );
+    let wav = dir.path().join("one-source.wav");
+    write_float(&wav, &planes);
+    // A 64×32 equirectangular still: red on its left half (azimuth > 0), black on its right.
+    let (w, h) = (64, 32);
+    let mut rgba = Vec::with_capacity(w * h * 4);
+    for _ in 0..h {
+        for x in 0..w {
+            rgba.extend_from_slice(if x < w / 2 {
+                &[255, 0, 0, 255]
+            } else {
+                &[0, 0, 0, 255]
+            });
+        }
+    }
+    let still = dir.path().join("still.png");
+    fieldglass::picture::write_png(
+        &still,
+        &fieldglass::picture::Picture {
+            width: w,
+            height: h,
+            rgba,
+        },
+    )
+    .unwrap();
+    let scan_with = |report: &Path, yaw: &str| {
+        let out = run(&[
+            "scan",
+            wav.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+            "--picture",
+            still.to_str().unwrap(),
+            "--picture-opacity",
+            "1",
+            "--picture-yaw",
+            yaw,
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        report.join("map-full.png")
+    };
+    // Opacity 1 shows the picture alone; away from grid lines and markers.
+    let straight = scan_with(&dir.path().join("straight"), "0");
+    assert_eq!(map_pixel(&straight, 75.0, 45.0), [255, 0, 0], "left is red");
+    assert_eq!(
+        map_pixel(&straight, -105.0, 45.0),
+        [0, 0, 0],
+        "right is black"
+    );
+    // Turned by 180°: the picture's left half now lies on the scene's right.
+    let turned = scan_with(&dir.path().join("turned"), "180");
+    assert_eq!(map_pixel(&turned, 75.0, 45.0), [0, 0, 0]);
+    assert_eq!(map_pixel(&turned, -105.0, 45.0), [255, 0, 0]);
+    let html = std::fs::read_to_string(dir.path().join("turned/report.html")).unwrap();
+    assert!(html.contains("Behind the maps"), "the report says so");
+}
+
+#[test]
+fn a_missing_or_broken_picture_stops_before_the_scan() {
+    let dir = tmp();
+    let wav = dir.path().join("short.wav");
+    write_float(
+        &wav,
+        &encode(
+            1,
+            AmbiFormat::ACN_SN3D,
+            &[(Direction::new(0.0, 0.0), 0.3)],
+            4800,
+        ),
+    );
+    let broken = dir.path().join("broken.png");
+    std::fs::write(&broken, b"\x89PNG\r\n\x1a\nnot really").unwrap();
+    let text = dir.path().join("notes.png");
+    std::fs::write(&text, b"a text file").unwrap();
+    let missing = dir.path().join("missing.jpg");
+    for (picture, needle) in [
+        (&missing, "cannot read the picture"),
+        (&broken, "cannot be decoded"),
+        (&text, "not a PNG or JPEG"),
+    ] {
+        let report = dir.path().join("report");
+        let out = run(&[
+            "scan",
+            wav.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+            "--picture",
+            picture.to_str().unwrap(),
+        ]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{stderr}");
+        assert!(stderr.contains(needle), "{needle}: {stderr}");
+        assert!(!stderr.contains("panicked"), "{stderr}");
+        assert!(!report.exists(), "stopped before the scan and the report");
+    }
+    // A picture without a report has nowhere to go: a usage error.
+    let out = run(&[
+        "scan",
+        wav.to_str().unwrap(),
+        "--picture",
+        missing.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(2));
 }

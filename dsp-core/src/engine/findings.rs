@@ -1,20 +1,22 @@
 //! Findings: plain-words statements a reviewer should see, with stable codes.
+//!
+//! Every channel index a rule handles is an input (file or host) index, counted from 0: the
+//! channel facts carry theirs, and the format check's silent and duplicate channels are input
+//! indices of the raw covariance. Messages name channels for people through
+//! [`wording::channel_list`] ("channel 5 (ACN 6)" for FuMa's R), with the ACN the channel carries
+//! under the assumed format; `Finding::channels` keeps the 0-based input indices.
 
 use super::control::AnalysisSettings;
 use super::snapshot::{
     ChannelProgramme, ChannelStatus, Finding, FindingCode, FormatCheck, Severity, Snapshot,
 };
 use crate::format::AmbiFormat;
+use crate::wording;
 
 /// |DC| above this (−50 dBFS) over the meter window is reported.
 pub const DC_OFFSET_LIMIT: f64 = 0.003_162;
 /// Below this confidence a format disagreement is not reported.
 pub const MISMATCH_CONFIDENCE: f64 = 0.6;
-
-fn list(channels: &[usize]) -> String {
-    let names: Vec<String> = channels.iter().map(|c| (c + 1).to_string()).collect();
-    names.join(", ")
-}
 
 /// The stream is order `order` but only orders up to `effective` carry energy.
 pub fn order_deficit(order: usize, effective: usize) -> Finding {
@@ -31,7 +33,10 @@ pub fn order_deficit(order: usize, effective: usize) -> Finding {
 /// What the finding rules need to know of one channel, live or over the whole programme.
 #[derive(Clone, Copy, Debug, PartialEq, Default)]
 pub struct ChannelFacts {
+    /// Index in the input (file or host order), counted from 0.
     pub input_index: usize,
+    /// ACN the channel carries under the assumed format; `None` for an extra channel.
+    pub acn: Option<usize>,
     pub invalid_samples: u64,
     pub clip_count: u64,
     pub longest_clip_run: u64,
@@ -43,6 +48,7 @@ impl From<&ChannelStatus> for ChannelFacts {
     fn from(s: &ChannelStatus) -> Self {
         Self {
             input_index: s.input_index,
+            acn: s.acn,
             invalid_samples: s.reading.invalid_sample_count,
             clip_count: s.reading.clip_count,
             longest_clip_run: s.reading.longest_clip_run,
@@ -56,6 +62,7 @@ impl From<&ChannelProgramme> for ChannelFacts {
     fn from(c: &ChannelProgramme) -> Self {
         Self {
             input_index: c.input_index,
+            acn: c.acn,
             invalid_samples: c.invalid_samples,
             clip_count: c.clip_count,
             longest_clip_run: c.longest_clip_run,
@@ -98,6 +105,13 @@ pub fn live_findings(snapshot: &Snapshot, settings: &AnalysisSettings) -> Vec<Fi
 pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> Vec<Finding> {
     let mut findings = Vec::new();
     let status = inputs.channels;
+    let acn_of = |input: usize| {
+        status
+            .iter()
+            .find(|s| s.input_index == input)
+            .and_then(|s| s.acn)
+    };
+    let list = |channels: &[usize]| wording::channel_list(channels, acn_of);
     let pick = |f: &dyn Fn(&ChannelFacts) -> bool| -> Vec<usize> {
         status
             .iter()
@@ -111,7 +125,7 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
         findings.push(Finding {
             severity: Severity::Error,
             code: FindingCode::InvalidSamples,
-            message: format!("NaN or infinite samples on channel(s) {}", list(&invalid)),
+            message: format!("NaN or infinite samples on {}", list(&invalid)),
             channels: invalid,
         });
     }
@@ -123,7 +137,7 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
             severity: Severity::Error,
             code: FindingCode::Clipping,
             message: format!(
-                "{total} sample(s) at full scale on channel(s) {} (longest run {longest})",
+                "{total} sample(s) at full scale on {} (longest run {longest})",
                 list(&clipped)
             ),
             channels: clipped,
@@ -139,9 +153,11 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
             severity: Severity::Warning,
             code: FindingCode::OverOmni,
             message: format!(
-                "channel(s) {} louder than W by more than {:.1} dB after conversion to SN3D: \
-                 check the normalisation",
+                "{} {} {} by more than {:.1} dB after conversion to SN3D: check the \
+                 normalisation",
                 list(&over),
+                if over.len() == 1 { "is" } else { "are" },
+                wording::LOUDER_THAN_W,
                 settings.over_omni_tolerance_db
             ),
             channels: over,
@@ -152,8 +168,13 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
             severity: Severity::Warning,
             code: FindingCode::SilentChannel,
             message: format!(
-                "channel(s) {} carry no signal while W does",
-                list(&check.silent_channels)
+                "{} {} no signal while W does",
+                list(&check.silent_channels),
+                if check.silent_channels.len() == 1 {
+                    "carries"
+                } else {
+                    "carry"
+                }
             ),
             channels: check.silent_channels.clone(),
         });
@@ -169,7 +190,13 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
         let pairs: Vec<String> = check
             .duplicate_channels
             .iter()
-            .map(|&(a, b)| format!("{} = {}", a + 1, b + 1))
+            .map(|&(a, b)| {
+                format!(
+                    "{} = {}",
+                    wording::channel_label(a, acn_of(a)),
+                    wording::channel_label(b, acn_of(b))
+                )
+            })
             .collect();
         findings.push(Finding {
             severity: Severity::Warning,
@@ -215,9 +242,9 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
             severity: Severity::Error,
             code: FindingCode::FormatMismatch,
             message: format!(
-                "the signal looks like {} ({:.0} % confidence) but is read as {}",
+                "the signal looks like {} ({}) but is read as {}",
                 detected.human_name(),
-                100.0 * check.confidence,
+                wording::likelihood(check.confidence),
                 inputs.assumed_format.human_name()
             ),
             channels: Vec::new(),
@@ -228,10 +255,101 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
         findings.push(Finding {
             severity: Severity::Warning,
             code: FindingCode::DcOffset,
-            message: format!("DC offset above −50 dBFS on channel(s) {}", list(&dc)),
+            message: format!("DC offset above −50 dBFS on {}", list(&dc)),
             channels: dc,
         });
     }
     findings.sort_by_key(|f| std::cmp::Reverse(f.severity));
     findings
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// First-order FuMa in file order W X Y Z: the ACN each file channel carries (W 0, X 3,
+    /// Y 1, Z 2), from the Furse-Malham letter order and ACN = n(n+1)+m with X = (1, +1),
+    /// Y = (1, −1), Z = (1, 0).
+    fn fuma_first_order(over_omni: &[usize]) -> Vec<ChannelFacts> {
+        [0, 3, 1, 2]
+            .into_iter()
+            .enumerate()
+            .map(|(input_index, acn)| ChannelFacts {
+                input_index,
+                acn: Some(acn),
+                over_omni: over_omni.contains(&input_index),
+                ..ChannelFacts::default()
+            })
+            .collect()
+    }
+
+    fn findings_of(channels: &[ChannelFacts], check: &FormatCheck) -> Vec<Finding> {
+        collect_findings(
+            &FindingInputs {
+                channels,
+                format_check: check,
+                order: 1,
+                assumed_format: AmbiFormat::FUMA,
+                whole_programme: true,
+            },
+            &AnalysisSettings::default(),
+        )
+    }
+
+    #[test]
+    fn channels_are_named_by_file_position_with_the_acn_they_carry() {
+        // The format check's silent and duplicate channels are input indices, like the facts.
+        let check = FormatCheck {
+            silent_channels: vec![3],
+            duplicate_channels: vec![(1, 2)],
+            ..FormatCheck::default()
+        };
+        let findings = findings_of(&fuma_first_order(&[1, 2]), &check);
+        let message = |code| {
+            findings
+                .iter()
+                .find(|f| f.code == code)
+                .map(|f| f.message.clone())
+                .unwrap()
+        };
+        assert_eq!(
+            message(FindingCode::SilentChannel),
+            "channel 4 (ACN 2) carries no signal while W does"
+        );
+        assert_eq!(
+            message(FindingCode::DuplicateChannels),
+            "channels carry the same signal: channel 2 (ACN 3) = channel 3 (ACN 1)"
+        );
+        assert!(
+            message(FindingCode::OverOmni)
+                .starts_with("channels 2 (ACN 3), 3 (ACN 1) are louder than W by more than 0.5 dB"),
+            "{}",
+            message(FindingCode::OverOmni)
+        );
+        let silent = findings
+            .iter()
+            .find(|f| f.code == FindingCode::SilentChannel)
+            .unwrap();
+        assert_eq!(silent.channels, [3], "0-based input indices in the data");
+    }
+
+    #[test]
+    fn a_format_disagreement_reads_as_a_likelihood() {
+        let check = FormatCheck {
+            ready: true,
+            detected: Some(AmbiFormat::ACN_SN3D),
+            confidence: 0.9704,
+            ..FormatCheck::default()
+        };
+        let findings = findings_of(&fuma_first_order(&[]), &check);
+        let mismatch = findings
+            .iter()
+            .find(|f| f.code == FindingCode::FormatMismatch)
+            .unwrap();
+        assert!(
+            mismatch.message.contains("(97 % likely)"),
+            "{}",
+            mismatch.message
+        );
+    }
 }

@@ -1,14 +1,21 @@
-//! `--report DIR`: one self-contained `report.html` (pictures embedded as base64 data URIs, no
-//! external resources, opens offline) plus the same pictures as PNG files and the JSON twin.
+//! `--report DIR`: one self-contained `report.html` plus the same pictures as PNG files and the
+//! JSON twin. The report's pictures are inline SVG: axes, labels and legends are text the
+//! browser draws (selectable, any case); only the heat map itself is a raster, embedded as a
+//! PNG data URI inside the SVG. No external resources: it opens offline.
 
 use super::CliError;
-use super::charts::{map_chart, order_balance_chart, timeline_chart};
+use super::charts::{
+    Backdrop, Drawing, MAP_WIDTH, MapLayers, map_drawing, order_balance_drawing, timeline_drawing,
+};
 use super::json::to_json_string;
-use super::run::{ChannelSummary, ScanResult, expected_balance_db};
+use super::run::{BandResult, ChannelSummary, ScanResult, expected_balance_db};
 use super::summary::format_verdict;
-use base64::Engine as _;
-use fieldglass_dsp::engine::{Band, Severity};
+use crate::look;
+use crate::picture::Picture;
+use fieldglass_dsp::beam::default_map_range_db;
+use fieldglass_dsp::engine::{Band, MapMethod, Severity};
 use fieldglass_dsp::format::Normalization;
+use fieldglass_dsp::wording;
 use std::fmt::Write;
 use std::path::{Path, PathBuf};
 
@@ -23,38 +30,76 @@ pub fn map_file(band: Band) -> String {
     format!("map-{}.png", band.label())
 }
 
+/// Colour-scale range of the report's maps, dB below each map's maximum: the editor's default
+/// for the same method and order.
+pub fn map_range_db(method: MapMethod, order: usize) -> f64 {
+    default_map_range_db(method, order)
+}
+
+/// Longest side a picture is shrunk to for the report (twice the map's width: enough for its
+/// 720 × 360 pixels).
+pub const PICTURE_MAX_SIDE: usize = 2 * MAP_WIDTH;
+
+/// A picture behind the report's maps, with the editor's meaning of yaw and opacity.
+#[derive(Clone, Debug)]
+pub struct ReportPicture {
+    /// How the picture is named in the report (its path as given).
+    pub name: String,
+    pub picture: Picture,
+    /// Azimuth the picture's centre is turned to, degrees.
+    pub yaw_deg: f64,
+    /// 0 (maps only) … 1 (picture only).
+    pub opacity: f64,
+}
+
 const STYLE: &str = r#"
 :root { color-scheme: dark; }
-body { background: #111317; color: #c4c8cf; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0; }
+body { background: {BACKGROUND}; color: {TEXT}; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0; }
 main { max-width: 1080px; margin: 0 auto; padding: 24px 28px 48px; }
 h1 { font-size: 22px; font-weight: 600; color: #e4e6ea; margin: 0 0 4px; }
 h2 { font-size: 17px; font-weight: 600; color: #e4e6ea; margin: 32px 0 10px; border-bottom: 1px solid #2a2e35; padding-bottom: 4px; }
 h3 { font-size: 15px; font-weight: 600; color: #d4d7dc; margin: 20px 0 6px; }
 p { margin: 6px 0; }
-.muted { color: #8a9099; }
+.muted { color: {TEXT_DIM}; }
 .cards { display: grid; grid-template-columns: repeat(auto-fit, minmax(240px, 1fr)); gap: 12px; margin-top: 16px; }
-.card { background: #1b1e23; border: 1px solid #262a31; border-radius: 6px; padding: 10px 14px; }
-.card .label { font-size: 12px; text-transform: uppercase; letter-spacing: .06em; color: #8a9099; }
+.card { background: {PANEL}; border: 1px solid #262a31; border-radius: 6px; padding: 10px 14px; }
+.card .label { font-size: 12px; text-transform: uppercase; letter-spacing: .06em; color: {TEXT_DIM}; }
 .card .value { font-size: 18px; color: #e4e6ea; }
-.caution { background: #1b1e23; border-left: 3px solid #8a7a4a; padding: 8px 14px; margin-top: 16px; font-size: 13px; color: #a9aeb6; }
-img { display: block; max-width: 100%; height: auto; border-radius: 4px; }
+.caution { background: {PANEL}; border-left: 3px solid {WARNING}; padding: 8px 14px; margin-top: 16px; font-size: 13px; color: #a9aeb6; }
+svg { display: block; max-width: 100%; height: auto; }
 figure { margin: 8px 0 4px; }
-figcaption { font-size: 13px; color: #8a9099; margin-top: 4px; }
+figcaption { font-size: 13px; color: {TEXT_DIM}; margin-top: 4px; }
 table { border-collapse: collapse; font-size: 13px; margin: 6px 0; }
 th, td { padding: 3px 10px; text-align: right; border-bottom: 1px solid #23272d; white-space: nowrap; }
-th { color: #8a9099; font-weight: 500; }
+th { color: {TEXT_DIM}; font-weight: 500; }
 td.left, th.left { text-align: left; }
 tr.attention td { background: #33291a; color: #f0d49a; }
-tr.attention td.flag { color: #ffcf70; font-weight: 600; }
+tr.attention td.flag { color: {WARNING}; font-weight: 600; }
 ul.findings { list-style: none; padding: 0; margin: 6px 0; }
-ul.findings li { margin: 4px 0; padding: 6px 10px; background: #1b1e23; border-radius: 4px; }
+ul.findings li { margin: 4px 0; padding: 6px 10px; background: {PANEL}; border-radius: 4px; }
 .sev { display: inline-block; min-width: 64px; font-size: 12px; font-weight: 600; text-transform: uppercase; letter-spacing: .05em; }
-.sev.error { color: #ff8f7a; }
-.sev.warning { color: #ffcf70; }
+.sev.error { color: {CLIP}; }
+.sev.warning { color: {WARNING}; }
 .sev.info { color: #9fc3e6; }
 code { font-family: ui-monospace, "SF Mono", Menlo, monospace; font-size: 13px; color: #d4d7dc; }
 footer { margin-top: 40px; font-size: 12px; color: #6f757e; }
 "#;
+
+/// The page's style sheet, with the colours of [`look`] (the editor's).
+fn style() -> String {
+    [
+        ("{BACKGROUND}", look::BACKGROUND),
+        ("{PANEL}", look::PANEL),
+        ("{TEXT}", look::TEXT),
+        ("{TEXT_DIM}", look::TEXT_DIM),
+        ("{WARNING}", look::WARNING),
+        ("{CLIP}", look::CLIP),
+    ]
+    .into_iter()
+    .fold(STYLE.to_string(), |css, (name, rgb)| {
+        css.replace(name, &look::css(rgb))
+    })
+}
 
 /// Escapes text for HTML element content and attribute values.
 pub fn escape(text: &str) -> String {
@@ -83,32 +128,34 @@ fn fmt_level(value: f64, decimals: usize) -> String {
     fmt_db(Some(value), decimals)
 }
 
-fn data_uri(png: &[u8]) -> String {
-    format!(
-        "data:image/png;base64,{}",
-        base64::engine::general_purpose::STANDARD.encode(png)
-    )
-}
-
 fn write_file(path: &Path, bytes: &[u8]) -> Result<(), CliError> {
     std::fs::write(path, bytes)
         .map_err(|e| CliError::output(format!("cannot write '{}': {e}", path.display())))
 }
 
-/// A picture: written as a file and returned as an `<img>` element with a data URI.
-fn picture(
-    dir: &Path,
-    file: &str,
-    png: Result<Vec<u8>, String>,
-    alt: &str,
-) -> Result<String, CliError> {
-    let png = png.map_err(|e| CliError::output(format!("cannot encode '{file}': {e}")))?;
-    write_file(&dir.join(file), &png)?;
-    Ok(format!(
-        "<img src=\"{}\" alt=\"{}\">",
-        data_uri(&png),
-        escape(alt)
-    ))
+/// A picture: written as a PNG file and returned as inline SVG.
+fn figure(dir: &Path, file: &str, drawing: &Drawing) -> Result<String, CliError> {
+    let cannot = |e: String| CliError::output(format!("cannot draw '{file}': {e}"));
+    write_file(&dir.join(file), &drawing.to_png().map_err(cannot)?)?;
+    drawing.to_svg().map_err(cannot)
+}
+
+/// The map layers of one band's whole-programme map.
+fn band_layers<'a>(
+    band: &'a BandResult,
+    sources: &'a [(f64, f64, f64)],
+    range_db: f64,
+    backdrop: Option<Backdrop<'a>>,
+) -> MapLayers<'a> {
+    MapLayers {
+        map_db: &band.map.values_db,
+        width: band.map.width,
+        height: band.map.height,
+        range_db,
+        view_yaw_deg: 0.0,
+        sources,
+        backdrop,
+    }
 }
 
 fn band_title(band: Band, range_hz: [f64; 2]) -> String {
@@ -130,7 +177,7 @@ fn channel_flags(c: &ChannelSummary) -> String {
         flags.push("NaN/Inf");
     }
     if c.over_omni {
-        flags.push("over W");
+        flags.push(wording::LOUDER_THAN_W);
     }
     if c.silent {
         flags.push("silent");
@@ -174,14 +221,17 @@ fn sources_table(out: &mut String, sources: &[fieldglass_dsp::engine::SourceRead
         out.push_str("<p class=\"muted\">No source found.</p>\n");
         return;
     }
-    out.push_str("<table><tr><th>#</th><th>Azimuth</th><th>Elevation</th><th>Level</th></tr>\n");
+    out.push_str("<table><tr><th>#</th><th class=\"left\">Direction</th><th>Level</th></tr>\n");
     for (i, s) in sources.iter().enumerate() {
         let _ = writeln!(
             out,
-            "<tr><td>{}</td><td>{}°</td><td>{}°</td><td>{} dB</td></tr>",
+            "<tr><td>{}</td><td class=\"left\">{}</td><td>{} dB</td></tr>",
             i + 1,
-            fmt_level(s.direction.azimuth_deg, 1),
-            fmt_level(s.direction.elevation_deg, 1),
+            escape(&wording::direction(
+                s.direction.azimuth_deg,
+                s.direction.elevation_deg
+            ))
+            .replace('-', "−"),
             fmt_level(s.level_db, 1)
         );
     }
@@ -189,21 +239,30 @@ fn sources_table(out: &mut String, sources: &[fieldglass_dsp::engine::SourceRead
 }
 
 /// Writes the report into `dir` (created if needed); returns the path of `report.html`.
-pub fn write_report(result: &ScanResult, dir: &Path) -> Result<PathBuf, CliError> {
+/// `picture`, if any, is shown behind every map.
+pub fn write_report(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<PathBuf, CliError> {
     std::fs::create_dir_all(dir).map_err(|e| {
         CliError::output(format!(
             "cannot create the report directory '{}': {e}",
             dir.display()
         ))
     })?;
-    let html = build_html(result, dir)?;
+    let html = build_html(result, dir, picture)?;
     let path = dir.join(REPORT_FILE);
     write_file(&path, html.as_bytes())?;
     write_file(&dir.join(JSON_FILE), to_json_string(result).as_bytes())?;
     Ok(path)
 }
 
-fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
+fn build_html(
+    result: &ScanResult,
+    dir: &Path,
+    picture: Option<&ReportPicture>,
+) -> Result<String, CliError> {
     let input = &result.input;
     let snap = &result.snapshot;
     let omni = &snap.programme.omni;
@@ -211,8 +270,9 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     let title = format!("Fieldglass scan — {}", input.display_name());
     let _ = write!(
         h,
-        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<title>{}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<main>\n",
-        escape(&title)
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<title>{}</title>\n<style>{}</style>\n</head>\n<body>\n<main>\n",
+        escape(&title),
+        style()
     );
     let _ = writeln!(h, "<h1>Scan report: {}</h1>", escape(&input.display_name()));
     let _ = writeln!(
@@ -283,11 +343,11 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         &format!("{} dBTP", fmt_level(omni.true_peak_dbtp, 1)),
         &if omni.conversion_gain_db.abs() > 0.005 {
             format!(
-                "whole file, 4× oversampled, SN3D-equivalent; as stored {} dBTP",
+                "whole programme, 4× oversampled, SN3D-equivalent; as stored {} dBTP",
                 fmt_level(omni.as_stored(omni.true_peak_dbtp), 1)
             )
         } else {
-            "whole file, 4× oversampled".to_string()
+            "whole programme, 4× oversampled".to_string()
         },
     );
     card(
@@ -297,25 +357,28 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         &format!("{} in all", result.findings.len()),
     );
     h.push_str("</div>\n");
-    h.push_str(
-        "<div class=\"caution\">Monitoring loud material can damage hearing: keep the listening level moderate. \
-         These meters do not replace a calibrated monitoring chain. Loudness and peak limits for a delivery are \
-         set by its specification and by local regulations — this tool reports, it does not certify.</div>\n",
+    let _ = writeln!(
+        h,
+        "<div class=\"caution\">{}</div>",
+        escape(wording::CAUTION)
     );
 
     // Findings.
     h.push_str("<h2>Findings</h2>\n");
     if result.findings.is_empty() {
-        h.push_str("<p>None: no clipping, invalid samples, over-omni, silent or duplicated channels, order deficit, format mismatch or DC offset found.</p>\n");
+        let _ = writeln!(
+            h,
+            "<p>None: no clipping, invalid samples, channel {}, silent or duplicated channels, order deficit, format mismatch or DC offset found.</p>",
+            wording::LOUDER_THAN_W
+        );
     } else {
         h.push_str("<ul class=\"findings\">\n");
         for f in &result.findings {
             let _ = writeln!(
                 h,
-                "<li><span class=\"sev {}\">{}</span> <code>{}</code> — {}</li>",
+                "<li><span class=\"sev {}\">{}</span> {}</li>",
                 f.severity.label(),
                 f.severity.label(),
-                f.code.label(),
                 escape(&f.message)
             );
         }
@@ -323,23 +386,52 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     }
 
     // Maps.
-    h.push_str("<h2>Sphere: whole-programme maps</h2>\n");
+    let range_db = map_range_db(result.options.method, result.layout.order);
+    let _ = writeln!(h, "<h2>Sphere: {} maps</h2>", wording::WHOLE_PROGRAMME);
     let _ = writeln!(
         h,
-        "<p class=\"muted\">{} map of the whole programme, in dB below its strongest point (colour scale on the right; \
-         dark = quiet). Equirectangular, as seen from the listening position: front in the centre, left (+90°) \
-         left of centre, up at the top; azimuth runs from +180° at the left edge to −180° at the right. \
+        "<p class=\"muted\">{} map of the {}, in dB below its strongest point over {range_db:.0} dB (colour scale on the right; \
+         dark = quiet), grid every {:.0}°. Equirectangular, as seen from the listening position: {} in the centre, {} (+90°) \
+         left of centre, {} at the top; azimuth runs from +180° at the left edge to −180° at the right. \
          Numbered rings mark the strongest directions.</p>",
-        escape(result.options.method.human_name())
+        escape(result.options.method.human_name()),
+        wording::WHOLE_PROGRAMME,
+        wording::GRID_STEP_DEG,
+        wording::FRONT,
+        wording::LEFT,
+        wording::UP,
     );
+    if let Some(p) = picture {
+        let _ = writeln!(
+            h,
+            "<p class=\"muted\">Behind the maps: <code>{}</code> at {:.0} % opacity, its centre turned to azimuth {}°.</p>",
+            escape(&p.name),
+            100.0 * p.opacity,
+            wording::degrees(p.yaw_deg).replace('-', "−")
+        );
+    }
     for band in &result.bands {
-        let _ = writeln!(h, "<h3>{}</h3>", band_title(band.band, band.range_hz));
-        let img = picture(
-            dir,
-            &map_file(band.band),
-            map_chart(band).to_png(),
-            &band_title(band.band, band.range_hz),
-        )?;
+        let title = band_title(band.band, band.range_hz);
+        let _ = writeln!(h, "<h3>{title}</h3>");
+        let sources: Vec<(f64, f64, f64)> = band
+            .sources
+            .iter()
+            .map(|s| {
+                (
+                    s.direction.azimuth_deg,
+                    s.direction.elevation_deg,
+                    s.level_db,
+                )
+            })
+            .collect();
+        let sample = |az: f64, el: f64| picture.map_or([0; 4], |p| p.picture.sample(az, el));
+        let backdrop = picture.map(|p| Backdrop {
+            sample: &sample,
+            yaw_deg: p.yaw_deg,
+            opacity: p.opacity,
+        });
+        let drawing = map_drawing(&band_layers(band, &sources, range_db, backdrop), &title);
+        let img = figure(dir, &map_file(band.band), &drawing)?;
         let _ = writeln!(
             h,
             "<figure>{img}<figcaption>Diffuseness {} · W level in band {} dBFS</figcaption></figure>",
@@ -358,11 +450,10 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
         escape(result.options.method.human_name()),
         1.0 / super::run::TIMELINE_RATE_HZ
     );
-    let img = picture(
+    let img = figure(
         dir,
         TIMELINE_FILE,
-        timeline_chart(&result.timeline, input.duration_s()).to_png(),
-        "azimuth and elevation of the strongest direction against time",
+        &timeline_drawing(&result.timeline, input.duration_s()),
     )?;
     let _ = writeln!(h, "<figure>{img}</figure>");
 
@@ -372,13 +463,13 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     if !check.hypotheses.is_empty() {
         let mut hyps = check.hypotheses.clone();
         hyps.sort_by(|a, b| b.probability.total_cmp(&a.probability));
-        h.push_str("<table><tr><th class=\"left\">Hypothesis</th><th>Probability</th><th>Steering fit</th></tr>\n");
+        h.push_str("<table><tr><th class=\"left\">Hypothesis</th><th>Likely</th><th>Steering fit</th></tr>\n");
         for hy in &hyps {
             let _ = writeln!(
                 h,
-                "<tr><td class=\"left\">{}</td><td>{:.1} %</td><td>{:.3}</td></tr>",
+                "<tr><td class=\"left\">{}</td><td>{}</td><td>{:.3}</td></tr>",
                 escape(hy.format.human_name()),
-                100.0 * hy.probability,
+                escape(&wording::likelihood(hy.probability)),
                 hy.steering_fit
             );
         }
@@ -387,13 +478,12 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     h.push_str(
         "<p class=\"muted\">Energy per order relative to W, read under the assumed format. For an incoherent \
          field each order carries as much energy as W in SN3D (0 dB); N3D content shows 10·log10(2n+1) dB; \
-         FuMa content about +3 dB at first order (W at −3 dB). The marks show what each would read as here.</p>\n",
+         FuMa content about +3 dB at first order (W at −3 dB). The short ticks show what each would read as here.</p>\n",
     );
-    let img = picture(
+    let img = figure(
         dir,
         ORDER_BALANCE_FILE,
-        order_balance_chart(result.order_balance_db(), result.options.assumed).to_png(),
-        "order balance",
+        &order_balance_drawing(result.order_balance_db(), result.options.assumed),
     )?;
     let _ = writeln!(h, "<figure>{img}</figure>");
     let assumed_norm = result.options.assumed.normalization;
@@ -422,9 +512,12 @@ fn build_html(result: &ScanResult, dir: &Path) -> Result<String, CliError> {
     h.push_str("<h2>Channels</h2>\n");
     let _ = writeln!(
         h,
-        "<p class=\"muted\">Whole-file figures per file channel (numbered from 1), raw as stored; “RMS as SN3D” is \
-         the level after conversion from the assumed format, which is what is compared with W (tolerance {:.1} dB). \
-         Highlighted rows need attention.</p>",
+        "<p class=\"muted\">Figures of the {} per file channel, numbered from 1 in file order, with the ACN it \
+         carries as read; levels raw as stored. “RMS as SN3D” is the level after conversion from the assumed format, \
+         which is what is compared with W: a channel {} by more than {:.1} dB is flagged. Highlighted rows need \
+         attention.</p>",
+        wording::WHOLE_PROGRAMME,
+        wording::LOUDER_THAN_W,
         result.options.over_omni_tolerance_db
     );
     let _ = writeln!(h, "<table>{CHANNEL_HEADER}");

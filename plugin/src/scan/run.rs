@@ -7,15 +7,17 @@
 use super::CliError;
 use super::progress::Progress;
 use crate::wav::{Container, SampleFormat, WavReader};
+use fieldglass_dsp::engine::findings::{ChannelFacts, FindingInputs, collect_findings};
 use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
 };
-use fieldglass_dsp::engine::{FindingCode, Severity};
+use fieldglass_dsp::engine::{FindingCode, FormatCheck, Severity};
 use fieldglass_dsp::format::{AmbiFormat, MixedOrderExpander, Normalization};
 use fieldglass_dsp::meters::FullScale;
 use fieldglass_dsp::scene::{DemoScene, SceneConfig};
 use fieldglass_dsp::sphere::Direction;
+use fieldglass_dsp::wording;
 use std::path::PathBuf;
 use std::time::Instant;
 
@@ -128,11 +130,11 @@ impl InputInfo {
         self.frames as f64 / self.sample_rate_hz
     }
 
-    /// Path for messages, or "demo scene".
+    /// Path for messages, or the demo scene's name.
     pub fn display_name(&self) -> String {
         match &self.path {
             Some(p) => p.display().to_string(),
-            None => "demo scene".to_string(),
+            None => wording::DEMO_SCENE.to_string(),
         }
     }
 }
@@ -336,7 +338,8 @@ fn open(input: &ScanInput, options: &mut ScanOptions) -> Result<(Source, InputIn
             let info = InputInfo {
                 path: None,
                 description: format!(
-                    "demo scene (harbour-front terrace at dusk), order {order}, {}, {sample_rate_hz} Hz",
+                    "{}, order {order}, {}, {sample_rate_hz} Hz",
+                    wording::DEMO_SCENE,
                     format.human_name()
                 ),
                 channels: scene.channels(),
@@ -451,7 +454,17 @@ pub fn scan(input: &ScanInput, options: ScanOptions) -> Result<ScanResult, CliEr
     let mut channels = programme.channels.clone();
     let mut findings = programme.findings.clone();
     if let Some(e) = &expander {
-        to_file_channels(e, &mut channels, &mut findings);
+        to_file_channels(e, &mut channels);
+        findings = file_channel_findings(
+            e,
+            &channels,
+            &FindingContext {
+                format_check: &programme.format_check,
+                order: layout.order,
+                assumed: options.assumed,
+                settings: analyzer.settings(),
+            },
+        );
     }
     for warning in &info.warnings {
         findings.push(Finding {
@@ -547,13 +560,9 @@ pub fn expected_balance_db(
         .collect()
 }
 
-/// Channel figures and findings of an expanded mixed-order stream, back in file channels: the
-/// absent components have no row, and findings name file channels.
-fn to_file_channels(
-    expander: &MixedOrderExpander,
-    channels: &mut Vec<ChannelSummary>,
-    findings: &mut [Finding],
-) {
+/// Channel figures of an expanded mixed-order stream, back in file channels: the absent
+/// components have no row.
+fn to_file_channels(expander: &MixedOrderExpander, channels: &mut Vec<ChannelSummary>) {
     channels.retain_mut(|c| match expander.source_channel(c.input_index) {
         Some(file_channel) => {
             c.input_index = file_channel;
@@ -562,11 +571,49 @@ fn to_file_channels(
         None => false,
     });
     channels.sort_by_key(|c| c.input_index);
-    for f in findings.iter_mut() {
-        f.channels = f
-            .channels
-            .iter()
+}
+
+/// What the finding rules need besides the channels.
+struct FindingContext<'a> {
+    format_check: &'a FormatCheck,
+    order: usize,
+    assumed: AmbiFormat,
+    settings: &'a AnalysisSettings,
+}
+
+/// The engine's finding rules run again on file channels, so that both the indices and the
+/// messages ("channel 4 (ACN 8)") name the channels of the file rather than those of the
+/// expanded full-order layout. `channels` are already in file channels.
+fn file_channel_findings(
+    expander: &MixedOrderExpander,
+    channels: &[ChannelSummary],
+    context: &FindingContext,
+) -> Vec<Finding> {
+    let to_file = |list: &[usize]| -> Vec<usize> {
+        list.iter()
             .filter_map(|&c| expander.source_channel(c))
-            .collect();
-    }
+            .collect()
+    };
+    let check = context.format_check;
+    let file_check = FormatCheck {
+        silent_channels: to_file(&check.silent_channels),
+        silent_by_geometry: to_file(&check.silent_by_geometry),
+        duplicate_channels: check
+            .duplicate_channels
+            .iter()
+            .filter_map(|&(a, b)| Some((expander.source_channel(a)?, expander.source_channel(b)?)))
+            .collect(),
+        ..check.clone()
+    };
+    let facts: Vec<ChannelFacts> = channels.iter().map(Into::into).collect();
+    collect_findings(
+        &FindingInputs {
+            channels: &facts,
+            format_check: &file_check,
+            order: context.order,
+            assumed_format: context.assumed,
+            whole_programme: true,
+        },
+        context.settings,
+    )
 }

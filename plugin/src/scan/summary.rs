@@ -2,6 +2,7 @@
 
 use super::run::{AssumedSource, ScanResult};
 use fieldglass_dsp::engine::Band;
+use fieldglass_dsp::wording;
 use std::fmt::Write;
 
 fn db(value: Option<f64>, unit: &str) -> String {
@@ -28,16 +29,16 @@ pub fn format_verdict(result: &ScanResult) -> String {
         Some(detected) if detected == assumed => {
             let _ = write!(
                 line,
-                "; the signal agrees ({:.0} % confidence)",
-                100.0 * check.confidence
+                "; the signal agrees ({})",
+                wording::likelihood(check.confidence)
             );
         }
         Some(detected) => {
             let _ = write!(
                 line,
-                "; the signal looks like {} ({:.0} % confidence)",
+                "; the signal looks like {} ({})",
                 detected.human_name(),
-                100.0 * check.confidence
+                wording::likelihood(check.confidence)
             );
         }
         None => line.push_str("; not enough signal to judge the format"),
@@ -91,7 +92,8 @@ pub fn summary(result: &ScanResult, report: Option<&str>) -> String {
     if let Some(full) = result.band(Band::Full) {
         let _ = writeln!(
             out,
-            "  sources:  whole programme, {} map, full band (diffuseness {})",
+            "  sources:  {}, {} map, full band (diffuseness {})",
+            wording::WHOLE_PROGRAMME,
             result.options.method.human_name(),
             full.diffuseness
                 .map_or("–".to_string(), |d| format!("{d:.2}"))
@@ -102,10 +104,9 @@ pub fn summary(result: &ScanResult, report: Option<&str>) -> String {
         for (i, s) in full.sources.iter().take(5).enumerate() {
             let _ = writeln!(
                 out,
-                "            {}. azimuth {:>7.1}°  elevation {:>6.1}°  {:>6.1} dB",
+                "            {}. {:<18} {:>6.1} dB",
                 i + 1,
-                s.direction.azimuth_deg,
-                s.direction.elevation_deg,
+                wording::direction(s.direction.azimuth_deg, s.direction.elevation_deg),
                 s.level_db
             );
         }
@@ -115,13 +116,7 @@ pub fn summary(result: &ScanResult, report: Option<&str>) -> String {
     } else {
         let _ = writeln!(out, "  findings:");
         for f in &result.findings {
-            let _ = writeln!(
-                out,
-                "            [{}] {}: {}",
-                f.severity.label(),
-                f.code.label(),
-                f.message
-            );
+            let _ = writeln!(out, "            [{}] {}", f.severity.label(), f.message);
         }
     }
     if let Some(report) = report {
