@@ -327,7 +327,7 @@ pub fn draw_editor(
                 ui.separator();
                 picture_layer::draw_controls(ui, &mut state.picture, host);
                 ui.separator();
-                export::draw(ui, &mut state.export, &state.sphere, snapshot, host);
+                export::draw(ui, &mut state.export, &state.picture, snapshot, host);
             });
         });
     egui::Panel::bottom("fieldglass_channels")

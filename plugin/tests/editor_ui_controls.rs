@@ -441,3 +441,76 @@ fn automatic_range_is_on_by_default_and_gives_way_to_the_manual_one() {
     assert!(!range.accesskit_node().is_disabled());
     assert_eq!(range.accesskit_node().numeric_value(), Some(30.0));
 }
+
+#[test]
+fn save_view_writes_the_map_picture_and_the_numbers() {
+    let dir = tempfile::tempdir().unwrap();
+    let folder = dir.path().join("notes");
+    let mut snapshot = quiet_snapshot(3);
+    snapshot.programme.channels = snapshot
+        .channel_status
+        .iter()
+        .map(|c| fieldglass_dsp::engine::ChannelProgramme {
+            input_index: c.input_index,
+            acn: c.acn,
+            order: c.order,
+            degree: c.degree,
+            rms_dbfs: -20.0,
+            ..Default::default()
+        })
+        .collect();
+    snapshot.sources = vec![fieldglass_dsp::engine::SourceReading {
+        direction: fieldglass_dsp::sphere::Direction::new(-35.0, 0.0),
+        level_db: 0.0,
+    }];
+    let mut harness = harness(Some(snapshot));
+    // Without a folder: a message, nothing written.
+    harness
+        .get_by_role_and_label(Role::Button, "Save view")
+        .click();
+    harness.run_steps(2);
+    let _ = harness.get_by_label_contains("Type a folder to save into first");
+
+    harness.get_by_label("Save folder").focus();
+    harness.run_steps(1);
+    harness
+        .get_by_label("Save folder")
+        .type_text(folder.to_str().unwrap());
+    harness.run_steps(1);
+    harness
+        .get_by_role_and_label(Role::Button, "Save view")
+        .click();
+    harness.run_steps(2);
+    let _ = harness.get_by_label_contains("Saved fieldglass-view-3s-7.png");
+    assert_eq!(harness.state().host.save_folder, folder.to_str().unwrap());
+
+    let png = std::fs::read(folder.join("fieldglass-view-3s-7.png")).unwrap();
+    let decoder = png::Decoder::new(std::io::Cursor::new(png));
+    let reader = decoder.read_info().unwrap();
+    assert!(reader.info().width >= 360, "a map wide enough to read");
+    let json: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(folder.join("fieldglass-view-3s-7.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(json["schema"], "fieldglass-view/1");
+    // The scan JSON's names where the meaning is the same (docs/scan-json.md).
+    let channel = &json["channels"][6];
+    assert_eq!(channel["index"], 6);
+    assert_eq!(channel["acn"], 6);
+    assert_eq!(channel["rms_dbfs"], -20.0);
+    for key in [
+        "peak_dbfs",
+        "true_peak_dbtp",
+        "sn3d_rms_dbfs",
+        "over_omni",
+        "silent",
+    ] {
+        assert!(channel.get(key).is_some(), "{key}");
+    }
+    assert_eq!(json["sources"][0]["azimuth_deg"], -35.0);
+    assert_eq!(json["assumed"]["ordering"], "acn");
+    assert_eq!(json["assumed"]["normalization"], "sn3d");
+    assert_eq!(json["map"]["range_db"], 23.0);
+    assert_eq!(json["map"]["read_as"], "acn-sn3d");
+    assert!(json["findings"].as_array().unwrap().is_empty());
+}
