@@ -384,7 +384,7 @@ pub fn draw(
         let label = ui.label("Save folder");
         let field = egui::TextEdit::singleline(&mut state.folder_field)
             .hint_text("folder for the PNG and JSON")
-            .desired_width(ui.available_width() - 4.0);
+            .desired_width(super::picture_layer::FIELD_WIDTH);
         ui.add(field).labelled_by(label.id);
     });
     let button = ui

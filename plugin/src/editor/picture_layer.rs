@@ -13,6 +13,9 @@ use crate::picture::{Picture, PictureError, load_picture};
 use std::sync::Arc;
 use std::sync::mpsc::{Receiver, TryRecvError, channel};
 
+/// Width of the path field, points: fits the side panel at its default width.
+pub const FIELD_WIDTH: f32 = 220.0;
+
 /// A picture ready to draw.
 pub struct LoadedPicture {
     /// The path it was read from.
@@ -146,7 +149,7 @@ pub fn draw_controls(ui: &mut egui::Ui, state: &mut PictureLayerState, host: &mu
         let label = ui.label("Picture file");
         let field = egui::TextEdit::singleline(&mut state.path_field)
             .hint_text("equirectangular PNG or JPEG")
-            .desired_width(ui.available_width() - 4.0);
+            .desired_width(FIELD_WIDTH);
         ui.add(field).labelled_by(label.id);
     });
     ui.horizontal(|ui| {
@@ -196,36 +199,36 @@ pub fn draw_controls(ui: &mut egui::Ui, state: &mut PictureLayerState, host: &mu
             .color(theme::TEXT_DIM),
         );
     }
-    ui.horizontal_wrapped(|ui| {
-        ui.spacing_mut().slider_width = 90.0;
-        let mut opacity_percent = settings.opacity * 100.0;
+    ui.spacing_mut().slider_width = 120.0;
+    let mut opacity_percent = settings.opacity * 100.0;
+    let mut yaw_offset_deg = settings.yaw_offset_deg;
+    let opacity = ui.horizontal(|ui| {
         let label = ui.label("Picture opacity");
-        let opacity = ui
-            .add(
-                egui::Slider::new(&mut opacity_percent, 0.0..=100.0)
-                    .step_by(5.0)
-                    .suffix(" %"),
-            )
-            .labelled_by(label.id);
-        let mut yaw_offset_deg = settings.yaw_offset_deg;
-        let label = ui.label("Picture yaw");
-        let yaw = ui
-            .add(
-                egui::Slider::new(&mut yaw_offset_deg, -180.0..=180.0)
-                    .step_by(1.0)
-                    .suffix("°"),
-            )
-            .labelled_by(label.id)
-            .on_hover_text(
-                "Azimuth of the sound field that the picture's centre shows; the picture turns \
-                 with the map's view yaw",
-            );
-        if opacity.changed() || yaw.changed() {
-            host.set_picture_settings(PictureSettings {
-                opacity: opacity_percent / 100.0,
-                yaw_offset_deg,
-                ..settings.clone()
-            });
-        }
+        ui.add(
+            egui::Slider::new(&mut opacity_percent, 0.0..=100.0)
+                .step_by(5.0)
+                .suffix(" %"),
+        )
+        .labelled_by(label.id)
     });
+    let yaw = ui.horizontal(|ui| {
+        let label = ui.label("Picture yaw");
+        ui.add(
+            egui::Slider::new(&mut yaw_offset_deg, -180.0..=180.0)
+                .step_by(1.0)
+                .suffix("°"),
+        )
+        .labelled_by(label.id)
+        .on_hover_text(
+            "Azimuth of the sound field that the picture's centre shows; the picture turns \
+                 with the map's view yaw",
+        )
+    });
+    if opacity.inner.changed() || yaw.inner.changed() {
+        host.set_picture_settings(PictureSettings {
+            opacity: opacity_percent / 100.0,
+            yaw_offset_deg,
+            ..settings.clone()
+        });
+    }
 }

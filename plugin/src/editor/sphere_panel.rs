@@ -131,18 +131,15 @@ fn method_text(method: MethodChoice) -> &'static str {
 /// Width of the view sliders, so a row of four fits the panel at the default window size.
 const SLIDER_WIDTH: f32 = 64.0;
 
-/// A label followed by its control, kept together when the row wraps; the control is
-/// announced under the label's name (AccessKit).
+/// A label followed by its control, announced under the label's name (AccessKit). Both go
+/// straight into the (wrapping) row, so a narrow panel wraps instead of overflowing.
 fn labelled(
     ui: &mut egui::Ui,
     text: &str,
     add: impl FnOnce(&mut egui::Ui) -> egui::Response,
 ) -> egui::Response {
-    ui.horizontal(|ui| {
-        let label = ui.label(text);
-        add(ui).labelled_by(label.id)
-    })
-    .inner
+    let label = ui.label(text);
+    add(ui).labelled_by(label.id)
 }
 
 fn format_text(choice: FormatChoice) -> &'static str {
@@ -590,8 +587,9 @@ fn draw_labels(painter: &egui::Painter, rect: Rect, to_screen: &dyn Fn(f64, f64)
         (-90.0, wording::DOWN, egui::Align2::LEFT_BOTTOM),
     ] {
         let y = to_screen(0.0, elevation_deg).y;
-        // Above the azimuth numbers along the bottom edge.
-        let y = y.clamp(rect.top() + 2.0, rect.bottom() - 14.0);
+        // Below the direction words along the top edge, above the azimuth numbers along the
+        // bottom edge.
+        let y = y.clamp(rect.top() + 16.0, rect.bottom() - 14.0);
         painter.text(
             pos2(rect.left() + 2.0, y),
             anchor,
