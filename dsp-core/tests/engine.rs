@@ -1,7 +1,9 @@
 //! End-to-end checks of the analysis engine on encoded test fields.
 
 use fieldglass_dsp::encoder::PlaneWaveEncoder;
-use fieldglass_dsp::engine::{AnalysisSettings, Analyzer, Band, MapMethod, StreamSetup};
+use fieldglass_dsp::engine::{
+    AnalysisSettings, Analyzer, Band, Engine, EngineControl, MapMethod, SnapshotSlot, StreamSetup,
+};
 use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::sphere::Direction;
 use fieldglass_dsp::sphere::grid::SphereGrid;
@@ -248,7 +250,6 @@ fn nan_and_silence_do_not_poison_the_analysis() {
 /// message once a usable format is chosen.
 #[test]
 fn fuma_above_third_order_is_refused_with_a_reason_and_the_analysis_goes_on() {
-    use fieldglass_dsp::engine::{Engine, EngineControl, SnapshotSlot};
     let setup = StreamSetup {
         sample_rate_hz: FS,
         channels: 25,
@@ -415,4 +416,158 @@ fn new_band_edges_restart_the_split_bands_and_a_reset_clears_the_verdict() {
     a.reset_integrated();
     a.finish();
     assert!(!a.snapshot().format_check.ready);
+}
+
+/// Feeds `signal` in 512-frame blocks to an existing analyzer.
+fn feed(a: &mut Analyzer, signal: &[Vec<f32>]) {
+    let frames = signal[0].len();
+    for start in (0..frames).step_by(512) {
+        let end = (start + 512).min(frames);
+        let refs: Vec<&[f32]> = signal.iter().map(|c| &c[start..end]).collect();
+        a.process(&refs);
+    }
+}
+
+#[test]
+fn a_comparison_format_moves_only_the_map() {
+    // A third-order FuMa plane wave read as AmbiX lands in the wrong place (FuMa puts X, not
+    // Y, in the second channel: DESIGN.md "Conventions"); the comparison format puts the map
+    // right while every other reading keeps the assumed format.
+    let d = Direction::new(60.0, 20.0);
+    let signal = encode(3, AmbiFormat::FUMA, &[(d, 0.3)], None, 0.5);
+    let assumed = AnalysisSettings::default();
+    let mut a = run(&signal, assumed, 512);
+    let wrong = a.snapshot().clone();
+    assert_eq!(wrong.map_format, AmbiFormat::ACN_SN3D);
+    assert!(wrong.sources[0].direction.angle_to_deg(&d) > 20.0);
+
+    a.apply_settings(AnalysisSettings {
+        map_format_override: Some(AmbiFormat::FUMA),
+        ..assumed
+    })
+    .unwrap();
+    feed(&mut a, &signal);
+    let compared = a.finish().clone();
+    assert_eq!(compared.map_format, AmbiFormat::FUMA);
+    assert_eq!(compared.assumed_format, AmbiFormat::ACN_SN3D);
+    assert!(
+        compared.sources[0].direction.angle_to_deg(&d) < 2.0,
+        "{:?}",
+        compared.sources[0]
+    );
+    // The channels still carry the ACN of the assumed format, W is read as AmbiX's W.
+    for (before, after) in wrong.channel_status.iter().zip(&compared.channel_status) {
+        assert_eq!(before.acn, after.acn);
+    }
+    assert_eq!(compared.omni.conversion_gain_db, 0.0);
+
+    // Released: back to the assumed format.
+    a.apply_settings(assumed).unwrap();
+    assert_eq!(a.finish().map_format, AmbiFormat::ACN_SN3D);
+    assert!(a.snapshot().sources[0].direction.angle_to_deg(&d) > 20.0);
+
+    // A comparison format the stream cannot be read as (FuMa at order 4) leaves the map alone.
+    let order4 = encode(4, AmbiFormat::ACN_SN3D, &[(d, 0.3)], None, 0.2);
+    let mut a = run(&order4, assumed, 512);
+    a.apply_settings(AnalysisSettings {
+        map_format_override: Some(AmbiFormat::FUMA),
+        ..assumed
+    })
+    .unwrap();
+    assert_eq!(a.finish().map_format, AmbiFormat::ACN_SN3D);
+}
+
+#[test]
+fn the_comparison_format_travels_through_the_engine_control() {
+    let d = Direction::new(-45.0, 10.0);
+    let signal = encode(1, AmbiFormat::FUMA, &[(d, 0.3)], None, 0.1);
+    let setup = StreamSetup {
+        sample_rate_hz: FS,
+        channels: 4,
+    };
+    let control = EngineControl::new(AnalysisSettings::default());
+    let slot = SnapshotSlot::new();
+    let (mut audio, mut thread) = Engine::start(setup, 512, control.clone(), slot.clone()).unwrap();
+    control.set_map_format_override(Some(AmbiFormat::FUMA));
+    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(10);
+    let snapshot = loop {
+        for start in (0..signal[0].len()).step_by(480) {
+            let refs: Vec<&[f32]> = signal.iter().map(|c| &c[start..start + 480]).collect();
+            audio.push(&refs);
+        }
+        if let Some(s) = slot.latest().filter(|s| s.map_format == AmbiFormat::FUMA) {
+            break s;
+        }
+        assert!(std::time::Instant::now() < deadline, "no compared snapshot");
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    };
+    assert_eq!(snapshot.assumed_format, AmbiFormat::ACN_SN3D);
+    assert_eq!(control.load().assumed_format, AmbiFormat::ACN_SN3D);
+    thread.stop();
+}
+
+#[test]
+fn the_finding_log_remembers_when_a_finding_appeared_and_whether_it_holds() {
+    // N3D read as SN3D: higher-order channels louder than W (REFERENCES §4, as above).
+    let sources = [
+        (Direction::new(10.0, 5.0), 0.2),
+        (Direction::new(-120.0, 30.0), 0.2),
+        (Direction::new(90.0, -20.0), 0.2),
+    ];
+    let quiet = vec![vec![0.0f32; 24_000]; 16];
+    let n3d = encode(3, AmbiFormat::ACN_N3D, &sources, Some((32, 0.02)), 1.0);
+    let mut a = run(&quiet, AnalysisSettings::default(), 512);
+    assert!(
+        a.snapshot().finding_log.is_empty(),
+        "silence reports nothing"
+    );
+    feed(&mut a, &n3d);
+    let s = a.finish().clone();
+    let over: Vec<_> = s
+        .finding_log
+        .iter()
+        .filter(|e| e.finding.code.label() == "over-omni")
+        .collect();
+    // One entry per channel set; the set may change as the short-window levels move.
+    assert!(over.iter().any(|e| e.active));
+    let first = over.iter().map(|e| e.first_seen_s).fold(f64::MAX, f64::min);
+    // It appeared after the half second of silence, within the first short window.
+    assert!((0.5..1.0).contains(&first), "first seen {first}");
+    assert!(
+        s.finding_log
+            .windows(2)
+            .all(|w| w[0].finding.severity >= w[1].finding.severity),
+        "most severe first"
+    );
+
+    // Read correctly, the finding stops holding but stays in the log.
+    a.apply_settings(AnalysisSettings {
+        assumed_format: AmbiFormat::ACN_N3D,
+        ..Default::default()
+    })
+    .unwrap();
+    feed(
+        &mut a,
+        &n3d[..]
+            .iter()
+            .map(|c| c[..4800].to_vec())
+            .collect::<Vec<_>>(),
+    );
+    let s = a.finish().clone();
+    let over: Vec<_> = s
+        .finding_log
+        .iter()
+        .filter(|e| e.finding.code.label() == "over-omni")
+        .collect();
+    assert!(!over.is_empty() && over.iter().all(|e| !e.active));
+    assert!(!s.finding_log_from_reset);
+
+    a.reset_finding_log();
+    let s = a.finish().clone();
+    assert!(s.finding_log_from_reset);
+    assert!(
+        s.finding_log
+            .iter()
+            .all(|e| e.finding.code.label() != "over-omni")
+    );
 }

@@ -7,15 +7,21 @@
 //! (ui, state, snapshot, host), so the whole editor runs headless.
 
 pub mod channel_strip;
+pub mod export;
+pub mod findings_list;
 pub mod format_panel;
 pub mod omni_panel;
+pub mod picture_layer;
 pub mod projection;
 pub mod sphere_panel;
 pub mod status_line;
 pub mod theme;
 
-use crate::params::{BandChoice, FieldglassParams, FormatChoice, MethodChoice, ViewSettings};
+use crate::params::{
+    BandChoice, FieldglassParams, FormatChoice, MethodChoice, PictureSettings, ViewSettings,
+};
 use fieldglass_dsp::engine::{EngineControl, Snapshot, SnapshotSlot};
+use fieldglass_dsp::format::AmbiFormat;
 use nice_plug::context::gui::GuiContext;
 use nice_plug::editor::dpi::LogicalSize;
 use nice_plug::prelude::ParamSetter;
@@ -75,7 +81,10 @@ pub enum Knob {
 pub enum Request {
     ResetClips,
     ResetLoudness,
+    /// Start a new whole programme (the integrated map and figures).
     ResetSessionMap,
+    /// Start the finding log afresh.
+    ResetFindings,
 }
 
 /// Current values of everything the editor shows as a control.
@@ -86,10 +95,14 @@ pub struct EditorSettings {
     pub band: BandChoice,
     pub time_constant_ms: f32,
     pub map_range_db: f32,
+    /// Map range from the method and order instead of `map_range_db`.
+    pub auto_map_range: bool,
     pub over_omni_tolerance_db: f32,
     pub view_yaw_deg: f32,
     pub view_pitch_deg: f32,
     pub view: ViewSettings,
+    /// The momentary comparison format of the map (not a parameter, never saved).
+    pub map_format_override: Option<AmbiFormat>,
 }
 
 impl Default for EditorSettings {
@@ -106,10 +119,12 @@ impl EditorSettings {
             band: params.band.value(),
             time_constant_ms: params.time_constant_ms.value(),
             map_range_db: params.map_range_db.value(),
+            auto_map_range: params.auto_map_range.value(),
             over_omni_tolerance_db: params.over_omni_tolerance_db.value(),
             view_yaw_deg: params.view_yaw_deg.value(),
             view_pitch_deg: params.view_pitch_deg.value(),
             view: params.view_settings(),
+            map_format_override: None,
         }
     }
 
@@ -132,7 +147,15 @@ pub trait EditorHost {
     fn set_method(&mut self, method: MethodChoice);
     fn set_band(&mut self, band: BandChoice);
     fn set_knob(&mut self, knob: Knob, value: f32);
+    fn set_auto_map_range(&mut self, automatic: bool);
     fn set_view(&mut self, view: ViewSettings);
+    /// Shows the map under `format` while a comparison is held; `None` ends it. Never
+    /// changes the assumed format.
+    fn set_map_format_override(&mut self, format: Option<AmbiFormat>);
+    fn picture_settings(&self) -> PictureSettings;
+    fn set_picture_settings(&mut self, settings: PictureSettings);
+    fn save_folder(&self) -> String;
+    fn set_save_folder(&mut self, folder: &str);
     fn request(&mut self, request: Request);
 }
 
@@ -142,6 +165,8 @@ pub struct MemoryHost {
     pub settings: EditorSettings,
     /// Requests made, in order.
     pub requests: Vec<Request>,
+    pub picture: PictureSettings,
+    pub save_folder: String,
 }
 
 impl EditorHost for MemoryHost {
@@ -167,8 +192,26 @@ impl EditorHost for MemoryHost {
             Knob::ViewPitchDeg => s.view_pitch_deg = value,
         }
     }
+    fn set_auto_map_range(&mut self, automatic: bool) {
+        self.settings.auto_map_range = automatic;
+    }
     fn set_view(&mut self, view: ViewSettings) {
         self.settings.view = view;
+    }
+    fn set_map_format_override(&mut self, format: Option<AmbiFormat>) {
+        self.settings.map_format_override = format;
+    }
+    fn picture_settings(&self) -> PictureSettings {
+        self.picture.clone()
+    }
+    fn set_picture_settings(&mut self, settings: PictureSettings) {
+        self.picture = settings.sanitised();
+    }
+    fn save_folder(&self) -> String {
+        self.save_folder.clone()
+    }
+    fn set_save_folder(&mut self, folder: &str) {
+        folder.clone_into(&mut self.save_folder);
     }
     fn request(&mut self, request: Request) {
         self.requests.push(request);
@@ -193,7 +236,10 @@ impl PluginHost<'_> {
 
 impl EditorHost for PluginHost<'_> {
     fn settings(&self) -> EditorSettings {
-        EditorSettings::from_params(self.params)
+        EditorSettings {
+            map_format_override: self.control.load().map_format_override,
+            ..EditorSettings::from_params(self.params)
+        }
     }
     fn set_assumed_format(&mut self, format: FormatChoice) {
         self.gesture(&self.params.assumed_format, format);
@@ -215,23 +261,45 @@ impl EditorHost for PluginHost<'_> {
         };
         self.gesture(param, value);
     }
+    fn set_auto_map_range(&mut self, automatic: bool) {
+        self.gesture(&self.params.auto_map_range, automatic);
+    }
     fn set_view(&mut self, view: ViewSettings) {
         self.params.update_view(|v| *v = view);
         self.params.apply_to(self.control);
+    }
+    fn set_map_format_override(&mut self, format: Option<AmbiFormat>) {
+        self.control.set_map_format_override(format);
+    }
+    fn picture_settings(&self) -> PictureSettings {
+        self.params.picture_settings()
+    }
+    fn set_picture_settings(&mut self, settings: PictureSettings) {
+        self.params.set_picture_settings(settings);
+    }
+    fn save_folder(&self) -> String {
+        self.params.save_folder()
+    }
+    fn set_save_folder(&mut self, folder: &str) {
+        self.params.set_save_folder(folder);
     }
     fn request(&mut self, request: Request) {
         match request {
             Request::ResetClips => self.control.request_clip_reset(),
             Request::ResetLoudness => self.control.request_loudness_reset(),
             Request::ResetSessionMap => self.control.request_integrated_reset(),
+            Request::ResetFindings => self.control.request_finding_log_reset(),
         }
     }
 }
 
-/// GUI-side state of every panel (textures, last pointer reading); `Default` is a fresh editor.
+/// GUI-side state of every panel (textures, last pointer reading, the picture being loaded,
+/// the last save); `Default` is a fresh editor.
 #[derive(Default)]
 pub struct EditorState {
     pub sphere: sphere_panel::SpherePanelState,
+    pub picture: picture_layer::PictureLayerState,
+    pub export: export::ExportState,
 }
 
 /// Draws the whole editor into `ui`. With no snapshot yet, every panel shows a calm waiting
@@ -253,7 +321,13 @@ pub fn draw_editor(
             egui::ScrollArea::vertical().show(ui, |ui| {
                 format_panel::draw(ui, snapshot, host);
                 ui.separator();
+                findings_list::draw(ui, snapshot, host);
+                ui.separator();
                 omni_panel::draw(ui, snapshot, host);
+                ui.separator();
+                picture_layer::draw_controls(ui, &mut state.picture, host);
+                ui.separator();
+                export::draw(ui, &mut state.export, &state.picture, snapshot, host);
             });
         });
     egui::Panel::bottom("fieldglass_channels")
@@ -261,7 +335,8 @@ pub fn draw_editor(
         .min_size(150.0)
         .show(ui, |ui| channel_strip::draw(ui, snapshot, host));
     egui::CentralPanel::default().show(ui, |ui| {
-        sphere_panel::draw(ui, &mut state.sphere, snapshot, host);
+        state.picture.poll(ui.ctx(), host);
+        sphere_panel::draw(ui, &mut state.sphere, &state.picture, snapshot, host);
     });
 }
 
@@ -320,6 +395,8 @@ impl NiceEguiApp for FieldglassApp {
     }
 
     fn editor_closed(&mut self) {
+        // A comparison held while the window closes must not outlive it.
+        self.data.control.set_map_format_override(None);
         self.gui_context = None;
         self.state = EditorState::default();
         self.data.control.set_maps_wanted(false);

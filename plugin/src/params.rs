@@ -1,12 +1,14 @@
 //! The plugin's parameters (automation targets) and persisted view state.
 //!
 //! Parameters are what a host may automate: the assumed input format, map method and band,
-//! time constant, the map's dB range, the over-omni tolerance and the view rotation. Display
-//! switches (hold, whole-session map, overlays) are not automation targets; they are saved with
-//! the session as one [`ViewSettings`] record whose every field falls back to its default, so
-//! state from older or damaged saves loads without a crash.
+//! time constant, the map's dB range (automatic or manual), the louder-than-W tolerance and
+//! the view rotation. Their display names are the editor's labels. Display switches (hold,
+//! whole-programme map, overlays) are not automation targets; they are saved with the session
+//! as one [`ViewSettings`] record, the picture behind the map as a [`PictureSettings`] record
+//! (its path, never its pixels) and the folder for saved views as a path; every field falls
+//! back to its default, so state from older or damaged saves loads without a crash.
 //!
-//! Parameter IDs are part of saved sessions and must never change.
+//! Parameter IDs are part of saved sessions and must never change (names may).
 
 use crate::ambisonic_buses::HostStatedFormat;
 use fieldglass_dsp::engine::{AnalysisSettings, Band, EngineControl, MapMethod};
@@ -21,11 +23,11 @@ pub const TIME_CONSTANT_MAX_MS: f32 = 10_000.0;
 pub const TIME_CONSTANT_DEFAULT_MS: f32 = 300.0;
 
 /// Range of the map's colour scale (the span from the brightest to the darkest colour), dB.
-pub const MAP_RANGE_MIN_DB: f32 = 10.0;
+pub const MAP_RANGE_MIN_DB: f32 = 6.0;
 pub const MAP_RANGE_MAX_DB: f32 = 60.0;
 pub const MAP_RANGE_DEFAULT_DB: f32 = 30.0;
 
-/// Over-omni tolerance, dB.
+/// Louder-than-W tolerance, dB.
 pub const TOLERANCE_MIN_DB: f32 = 0.1;
 pub const TOLERANCE_MAX_DB: f32 = 3.0;
 pub const TOLERANCE_DEFAULT_DB: f32 = 0.5;
@@ -42,22 +44,38 @@ pub enum FormatChoice {
     #[id = "fuma"]
     #[name = "FuMa"]
     Fuma,
+    #[id = "acn-maxn"]
+    #[name = "ACN/maxN"]
+    AcnMaxn,
 }
 
 impl FormatChoice {
-    pub const ALL: [FormatChoice; 3] = [Self::AcnSn3d, Self::AcnN3d, Self::Fuma];
+    pub const ALL: [FormatChoice; 4] = [Self::AcnSn3d, Self::AcnN3d, Self::Fuma, Self::AcnMaxn];
 
     pub fn format(self) -> AmbiFormat {
         match self {
             Self::AcnSn3d => AmbiFormat::ACN_SN3D,
             Self::AcnN3d => AmbiFormat::ACN_N3D,
             Self::Fuma => AmbiFormat::FUMA,
+            Self::AcnMaxn => AmbiFormat::ACN_MAXN,
         }
     }
 
-    /// The choice for `format`, or `None` for formats the parameter does not offer (ACN/maxN).
+    /// The choice for `format`, or `None` for formats the parameter does not offer (FuMa
+    /// ordering with SN3D or N3D weights).
     pub fn from_format(format: AmbiFormat) -> Option<Self> {
         Self::ALL.into_iter().find(|c| c.format() == format)
+    }
+
+    /// The choices a stream of `order` can be read as (FuMa and maxN stop at third order);
+    /// all of them while the order is not known yet.
+    pub fn allowed_for(order: Option<usize>) -> impl Iterator<Item = FormatChoice> {
+        Self::ALL
+            .into_iter()
+            .filter(move |c| match (order, c.format().max_order()) {
+                (Some(order), Some(max_order)) => order <= max_order,
+                _ => true,
+            })
     }
 }
 
@@ -128,7 +146,7 @@ impl BandChoice {
 pub struct ViewSettings {
     /// Freeze the live map.
     pub hold: bool,
-    /// Show the whole-session (integrated) map instead of the live one.
+    /// Show the whole-programme (integrated) map instead of the live one.
     pub show_integrated: bool,
     /// Draw the 30° grid over the map.
     pub show_grid: bool,
@@ -150,6 +168,51 @@ impl Default for ViewSettings {
     }
 }
 
+/// The picture behind the map, saved with the session: where it is, how strongly it shows
+/// and how it is turned. The pixels are read again from `path` when the editor opens.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct PictureSettings {
+    /// PNG or JPEG file, equirectangular 2:1; empty = no picture.
+    pub path: String,
+    /// How much of the picture shows through the map, 0 (none) … 1 (only the picture).
+    pub opacity: f32,
+    /// Azimuth of the sound field that the picture's centre shows, degrees (positive = the
+    /// picture turned to the left).
+    pub yaw_offset_deg: f32,
+}
+
+/// Default opacity of a picture behind the map: enough to recognise the scene while the
+/// map's colours still read.
+pub const PICTURE_OPACITY_DEFAULT: f32 = 0.4;
+
+impl Default for PictureSettings {
+    fn default() -> Self {
+        Self {
+            path: String::new(),
+            opacity: PICTURE_OPACITY_DEFAULT,
+            yaw_offset_deg: 0.0,
+        }
+    }
+}
+
+impl PictureSettings {
+    /// The values with out-of-range numbers brought back into range (a damaged save).
+    pub fn sanitised(mut self) -> Self {
+        self.opacity = if self.opacity.is_finite() {
+            self.opacity.clamp(0.0, 1.0)
+        } else {
+            PICTURE_OPACITY_DEFAULT
+        };
+        self.yaw_offset_deg = if self.yaw_offset_deg.is_finite() {
+            self.yaw_offset_deg.clamp(-180.0, 180.0)
+        } else {
+            0.0
+        };
+        self
+    }
+}
+
 /// Everything the host saves and may automate.
 #[derive(Params)]
 pub struct FieldglassParams {
@@ -163,9 +226,13 @@ pub struct FieldglassParams {
     /// Integration time constant of the live map, ms.
     #[id = "time_constant"]
     pub time_constant_ms: FloatParam,
-    /// Span of the map's colour scale below its top, dB.
+    /// Span of the map's colour scale below its top, dB (used when the automatic range is off).
     #[id = "map_range"]
     pub map_range_db: FloatParam,
+    /// Choose the map range from the method and order (the beam's highest side lobe, see
+    /// `fieldglass_dsp::beam::display_range`) instead of the manual Map range.
+    #[id = "auto_map_range"]
+    pub auto_map_range: BoolParam,
     /// A channel more than this above W (after conversion to SN3D) is flagged, dB.
     #[id = "over_omni_tolerance"]
     pub over_omni_tolerance_db: FloatParam,
@@ -178,6 +245,12 @@ pub struct FieldglassParams {
     /// Display switches, saved with the session.
     #[persist = "view"]
     pub view: Arc<RwLock<ViewSettings>>,
+    /// The picture behind the map (path, opacity, yaw offset), saved with the session.
+    #[persist = "picture"]
+    pub picture: Arc<RwLock<PictureSettings>>,
+    /// Folder the editor's "Save view" writes to, saved with the session.
+    #[persist = "save_folder"]
+    pub save_folder: Arc<RwLock<String>>,
     /// The format the host stated for the buses (not saved: the host states it again).
     pub host_stated_format: HostStatedFormat,
 }
@@ -213,8 +286,9 @@ impl Default for FieldglassParams {
             .with_step_size(1.0)
             .with_unit(" dB")
             .with_value_to_string(Arc::new(|value: f32| format!("{value:.0}"))),
+            auto_map_range: BoolParam::new("Automatic range", true),
             over_omni_tolerance_db: FloatParam::new(
-                "Over-omni tolerance",
+                "Louder-than-W tolerance",
                 TOLERANCE_DEFAULT_DB,
                 FloatRange::Linear {
                     min: TOLERANCE_MIN_DB,
@@ -247,6 +321,8 @@ impl Default for FieldglassParams {
             .with_unit("°")
             .with_value_to_string(degrees_to_string),
             view: Arc::new(RwLock::new(ViewSettings::default())),
+            picture: Arc::new(RwLock::new(PictureSettings::default())),
+            save_folder: Arc::new(RwLock::new(String::new())),
             host_stated_format: HostStatedFormat::default(),
         }
     }
@@ -256,6 +332,37 @@ impl FieldglassParams {
     /// The persisted view switches (defaults if the lock was poisoned).
     pub fn view_settings(&self) -> ViewSettings {
         self.view.read().map(|v| *v).unwrap_or_default()
+    }
+
+    /// The persisted picture settings, sanitised (defaults if the lock was poisoned).
+    pub fn picture_settings(&self) -> PictureSettings {
+        self.picture
+            .read()
+            .map(|p| p.clone())
+            .unwrap_or_default()
+            .sanitised()
+    }
+
+    /// Replaces the persisted picture settings.
+    pub fn set_picture_settings(&self, settings: PictureSettings) {
+        if let Ok(mut picture) = self.picture.write() {
+            *picture = settings.sanitised();
+        }
+    }
+
+    /// The persisted folder for saved views.
+    pub fn save_folder(&self) -> String {
+        self.save_folder
+            .read()
+            .map(|f| f.clone())
+            .unwrap_or_default()
+    }
+
+    /// Replaces the persisted folder for saved views.
+    pub fn set_save_folder(&self, folder: &str) {
+        if let Ok(mut saved) = self.save_folder.write() {
+            folder.clone_into(&mut saved);
+        }
     }
 
     /// Changes the persisted view switches.

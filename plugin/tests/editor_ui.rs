@@ -137,7 +137,7 @@ fn snapshot_with_verdict(detected: AmbiFormat, confidence: f64) -> Snapshot {
 #[test]
 fn use_detected_format_sets_the_assumed_format_only_when_pressed() {
     let mut harness = harness(Some(snapshot_with_verdict(AmbiFormat::ACN_N3D, 0.92)));
-    let _ = harness.get_by_label_contains("Looks like ACN/N3D (92% likely)");
+    let _ = harness.get_by_label_contains("Looks like ACN/N3D (92 % likely)");
     // Showing the verdict changes nothing by itself.
     assert_eq!(
         harness.state().host.settings.assumed_format,
@@ -169,7 +169,7 @@ fn meter_strip_warns_about_a_channel_above_w() {
     snapshot.channel_status[2].over_omni = true;
     snapshot.channel_status[2].sn3d_level_dbfs = -14.0;
     let harness = harness(Some(snapshot));
-    let _ = harness.get_by_label("Louder than W: ACN 2");
+    let _ = harness.get_by_label("Louder than W: channel 3 (ACN 2)");
 
     let calm = self::harness(Some(quiet_snapshot(1)));
     assert!(calm.query_by_label_contains("Louder than W").is_none());
@@ -212,7 +212,7 @@ fn meter_strip_handles_64_channels_and_names_the_channel() {
     snapshot.channel_status[50].over_omni = true;
     snapshot.channel_status[63].reading.clip_count = 3;
     let harness = harness(Some(snapshot));
-    let _ = harness.get_by_label("Louder than W: ACN 50");
+    let _ = harness.get_by_label("Louder than W: channel 51 (ACN 50)");
 }
 
 #[test]
@@ -222,7 +222,7 @@ fn reset_buttons_send_requests() {
     harness.run_steps(1);
     harness.get_by_label("Reset loudness").click();
     harness.run_steps(1);
-    harness.get_by_label("Reset session map").click();
+    harness.get_by_label("Reset whole programme").click();
     harness.run_steps(1);
     assert_eq!(
         harness.state().host.requests,

@@ -213,7 +213,7 @@ fn the_reported_ambisonic_config_follows_the_assumed_format() {
         .into_iter()
         .find(|p| p.name == "Assumed format")
         .expect("format parameter");
-    // Values are the choice's index (plugin/src/params.rs: AmbiX, ACN/N3D, FuMa).
+    // Values are the choice's index (plugin/src/params.rs: AmbiX, ACN/N3D, FuMa, ACN/maxN).
     for (value, expected) in [
         (
             1.0,
@@ -615,7 +615,7 @@ fn state_round_trips_through_the_state_extension() {
     let entry = load_plugin_entry();
     let mut a = Plugin::new(&entry);
     let params = a.params();
-    assert_eq!(params.len(), 8, "{params:?}");
+    assert_eq!(params.len(), 9, "{params:?}");
     let defaults = values(&mut a, &params);
     for (p, v) in params.iter().zip(&defaults) {
         assert_eq!(p.default, *v, "{} starts at its default", p.name);

@@ -10,12 +10,13 @@ use super::control::AnalysisSettings;
 use super::diffuseness::{
     DiffusenessTracker, FirstOrderMoments, energy_and_diffuseness, first_order_moments,
 };
+use super::finding_log::FindingLog;
 use super::findings::{ChannelFacts, FindingInputs, collect_findings, live_findings};
 use super::layout::{ChannelLayout, LayoutError};
 use super::maps::MapMaker;
 use super::snapshot::*;
 use crate::covariance::{BAND_COUNT, BandCovariance};
-use crate::format::{ConversionPlan, FormatError};
+use crate::format::{AmbiFormat, ConversionPlan, FormatError};
 use crate::format_check::{FormatCheckInput, FormatChecker};
 use crate::loudness::LoudnessMeter;
 use crate::meters::{
@@ -79,6 +80,9 @@ pub struct Analyzer {
     layout: ChannelLayout,
     settings: AnalysisSettings,
     conversion: ConversionPlan,
+    /// Conversion the map uses instead of `conversion` while a comparison format is asked for
+    /// ([`AnalysisSettings::map_format_override`]); `None` = the assumed format.
+    map_conversion: Option<ConversionPlan>,
     meters: ChannelMeters,
     loudness: LoudnessMeter,
     covariance: BandCovariance,
@@ -109,6 +113,7 @@ pub struct Analyzer {
     absent_channels: Vec<usize>,
     /// Run the level side on a second thread ([`Analyzer::set_split_levels`]).
     split_levels: bool,
+    finding_log: FindingLog,
 }
 
 /// W after conversion to SN3D into `w_scratch`, then into the loudness meter.
@@ -164,6 +169,7 @@ impl Analyzer {
             layout,
             settings,
             conversion,
+            map_conversion: None,
             meters,
             loudness,
             covariance,
@@ -193,6 +199,11 @@ impl Analyzer {
             format_not_applied: None,
             absent_channels: Vec::new(),
             split_levels: false,
+            finding_log: FindingLog::default(),
+        })
+        .map(|mut analyzer| {
+            analyzer.set_map_format_override(settings.map_format_override);
+            analyzer
         })
     }
 
@@ -268,6 +279,7 @@ impl Analyzer {
                 .map_err(EngineError::Settings)?;
         }
         self.settings = settings;
+        self.set_map_format_override(settings.map_format_override);
         match refused {
             Some(e) => Err(e.into()),
             None => Ok(()),
@@ -281,6 +293,31 @@ impl Analyzer {
             "{error}: the stream is analysed as {} instead",
             self.settings.assumed_format.human_name()
         ));
+    }
+
+    /// Reads the input as `format` for the map only (see
+    /// [`AnalysisSettings::map_format_override`]). A format the stream cannot be read as
+    /// (FuMa above third order) or the assumed format itself leaves the map on the assumed
+    /// format. Builds a small conversion plan: analysis thread only.
+    fn set_map_format_override(&mut self, format: Option<AmbiFormat>) {
+        let wanted = format.filter(|&f| f != self.settings.assumed_format);
+        if wanted == self.map_conversion.as_ref().map(|c| c.format()) {
+            return;
+        }
+        self.map_conversion =
+            wanted.and_then(|f| ConversionPlan::to_sn3d(f, self.layout.order).ok());
+    }
+
+    /// The format the map reads the input as.
+    pub fn map_format(&self) -> AmbiFormat {
+        self.map_conversion
+            .as_ref()
+            .map_or(self.settings.assumed_format, |c| c.format())
+    }
+
+    /// Starts the finding log afresh: first-seen times count from now.
+    pub fn reset_finding_log(&mut self) {
+        self.finding_log.reset(self.time_s);
     }
 
     pub fn reset_loudness(&mut self) {
@@ -435,16 +472,25 @@ impl Analyzer {
     /// Fills `r_sn3d` with the live or whole-programme covariance of `band` converted from the
     /// raw input to SN3D (ACN order): R[a][b] = g_a g_b R_raw[s_a][s_b].
     fn load_sn3d(&mut self, band: usize, integrated: bool) {
+        self.load_sn3d_as(band, integrated, false);
+    }
+
+    /// [`load_sn3d`](Self::load_sn3d), converting with the map's format when `for_map`.
+    fn load_sn3d_as(&mut self, band: usize, integrated: bool, for_map: bool) {
         let m = self.layout.spatial_channels;
         let (raw, scale) = if integrated {
             (&self.integrated[band], self.integrated_scale(band))
         } else {
             (&self.live[band], 1.0)
         };
+        let conversion = match &self.map_conversion {
+            Some(map_conversion) if for_map => map_conversion,
+            _ => &self.conversion,
+        };
         for a in 0..m {
-            let (sa, ga) = (self.conversion.source_channel(a), self.conversion.gain(a));
+            let (sa, ga) = (conversion.source_channel(a), conversion.gain(a));
             for b in 0..m {
-                let (sb, gb) = (self.conversion.source_channel(b), self.conversion.gain(b));
+                let (sb, gb) = (conversion.source_channel(b), conversion.gain(b));
                 self.r_sn3d[a * m + b] = ga * gb * raw[sa * m + sb] * scale;
             }
         }
@@ -458,8 +504,8 @@ impl Analyzer {
         let (separation, floor) = (s.source_separation_deg, s.source_floor_db);
         let show_integrated = s.show_integrated;
 
-        // Map of the selected band.
-        self.load_sn3d(band.index(), show_integrated);
+        // Map of the selected band, under the comparison format while one is asked for.
+        self.load_sn3d_as(band.index(), show_integrated, true);
         let mut map = std::mem::take(&mut self.snapshot.map);
         let mut sources = std::mem::take(&mut self.snapshot.sources);
         self.maps.make(
@@ -489,6 +535,7 @@ impl Analyzer {
             self.run_format_check();
         }
 
+        let map_format = self.map_format();
         let snap = &mut self.snapshot;
         snap.sequence = self.sequence;
         snap.time_s = self.time_s;
@@ -496,7 +543,13 @@ impl Analyzer {
         snap.format_not_applied.clone_from(&self.format_not_applied);
         snap.band_edges_hz = self.covariance.layout().edges_hz();
         snap.frozen = self.settings.hold;
+        snap.map_format = map_format;
         snap.findings = live_findings(snap, &self.settings);
+        self.finding_log.update(self.time_s, &snap.findings);
+        snap.finding_log.clear();
+        snap.finding_log
+            .extend_from_slice(self.finding_log.entries());
+        snap.finding_log_from_reset = self.finding_log.counts_from_reset();
     }
 
     fn update_channels(&mut self) {

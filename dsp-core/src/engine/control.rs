@@ -36,6 +36,11 @@ pub struct AnalysisSettings {
     pub source_separation_deg: f64,
     /// Sources weaker than this below the strongest are not reported, dB (positive number).
     pub source_floor_db: f64,
+    /// Make the map (and its sources) reading the input as this format instead of the
+    /// assumed one: a momentary comparison, e.g. with the detected format while a button is
+    /// held. Meters, loudness, the format check and findings keep the assumed format, and
+    /// the assumption itself does not change. `None` (the default) = the assumed format.
+    pub map_format_override: Option<AmbiFormat>,
 }
 
 impl Default for AnalysisSettings {
@@ -55,6 +60,7 @@ impl Default for AnalysisSettings {
             max_sources: 6,
             source_separation_deg: 20.0,
             source_floor_db: 15.0,
+            map_format_override: None,
         }
     }
 }
@@ -76,10 +82,13 @@ pub struct EngineControl {
     grid_step_deg: AtomicF64,
     map_rate_hz: AtomicF64,
     over_omni_tolerance_db: AtomicF64,
+    /// 0 = none, else 1 + index into [`AmbiFormat::ALL`].
+    map_format_override: AtomicU8,
     generation: AtomicU64,
     reset_loudness: AtomicBool,
     reset_integrated: AtomicBool,
     reset_clips: AtomicBool,
+    reset_finding_log: AtomicBool,
     /// Whether anyone looks at maps (the GUI sets it while open); analysis may skip map work.
     maps_wanted: AtomicBool,
     fixed: AnalysisSettings,
@@ -104,10 +113,12 @@ impl EngineControl {
             grid_step_deg: AtomicF64::new(0.0),
             map_rate_hz: AtomicF64::new(0.0),
             over_omni_tolerance_db: AtomicF64::new(0.0),
+            map_format_override: AtomicU8::new(0),
             generation: AtomicU64::new(0),
             reset_loudness: AtomicBool::new(false),
             reset_integrated: AtomicBool::new(false),
             reset_clips: AtomicBool::new(false),
+            reset_finding_log: AtomicBool::new(false),
             maps_wanted: AtomicBool::new(true),
             fixed: settings,
         });
@@ -145,6 +156,8 @@ impl EngineControl {
         self.map_rate_hz.store(s.map_rate_hz, r);
         self.over_omni_tolerance_db
             .store(s.over_omni_tolerance_db, r);
+        self.map_format_override
+            .store(s.map_format_override.map_or(0, |f| format_index(f) + 1), r);
         self.generation.fetch_add(1, Ordering::Release);
     }
 
@@ -174,6 +187,10 @@ impl EngineControl {
             grid_step_deg: self.grid_step_deg.load(r),
             map_rate_hz: self.map_rate_hz.load(r),
             over_omni_tolerance_db: self.over_omni_tolerance_db.load(r),
+            map_format_override: match self.map_format_override.load(r) {
+                0 => None,
+                i => AmbiFormat::ALL.get(i as usize - 1).copied(),
+            },
             ..self.fixed
         }
     }
@@ -202,6 +219,22 @@ impl EngineControl {
             self.reset_integrated.swap(false, Ordering::AcqRel),
             self.reset_clips.swap(false, Ordering::AcqRel),
         )
+    }
+
+    /// Asks the analysis to start its finding log afresh (first-seen times count from now).
+    pub fn request_finding_log_reset(&self) {
+        self.reset_finding_log.store(true, Ordering::Release);
+    }
+
+    /// Takes (and clears) a pending finding-log reset.
+    pub fn take_finding_log_reset(&self) -> bool {
+        self.reset_finding_log.swap(false, Ordering::AcqRel)
+    }
+
+    /// Shows the map under `format` (or under the assumed format again with `None`) without
+    /// touching any other setting: the momentary comparison of the Sphere panel.
+    pub fn set_map_format_override(&self, format: Option<AmbiFormat>) {
+        self.update(|s| s.map_format_override = format);
     }
 
     pub fn set_maps_wanted(&self, wanted: bool) {
@@ -256,12 +289,14 @@ mod tests {
             s.method = MapMethod::Music;
             s.band = Band::High;
             s.hold = true;
+            s.map_format_override = Some(AmbiFormat::ACN_MAXN);
         });
         let s = control.load();
         assert_eq!(s.assumed_format, AmbiFormat::FUMA);
         assert_eq!(s.method, MapMethod::Music);
         assert_eq!(s.band, Band::High);
         assert!(s.hold);
+        assert_eq!(s.map_format_override, Some(AmbiFormat::ACN_MAXN));
         assert!(control.generation() > g0);
         let g1 = control.generation();
         control.store(&s);
@@ -270,5 +305,13 @@ mod tests {
             g1,
             "storing the same settings changes nothing"
         );
+        control.set_map_format_override(None);
+        assert_eq!(control.load().map_format_override, None);
+        assert_eq!(control.load().assumed_format, AmbiFormat::FUMA);
+        assert!(control.generation() > g1);
+        assert!(!control.take_finding_log_reset());
+        control.request_finding_log_reset();
+        assert!(control.take_finding_log_reset());
+        assert!(!control.take_finding_log_reset(), "a request is taken once");
     }
 }

@@ -4,6 +4,7 @@
 pub mod analyzer;
 pub mod control;
 mod diffuseness;
+pub mod finding_log;
 pub mod findings;
 pub mod handoff;
 pub mod layout;
@@ -13,6 +14,7 @@ mod thread;
 
 pub use analyzer::{Analyzer, EngineError, StreamSetup};
 pub use control::{AnalysisSettings, EngineControl, SnapshotSlot};
+pub use finding_log::{FindingLog, LoggedFinding};
 pub use layout::{ChannelLayout, LayoutError, MAX_ENGINE_ORDER};
 pub use maps::{MUSIC_SIGNAL_FACTOR, MVDR_LOADING};
 pub use snapshot::*;

@@ -3,6 +3,7 @@
 //! Everything here is raw numbers in physical units (dB, degrees, seconds); colours and text are
 //! made at the edges (see [`crate::render`]). Cheap to clone; the GUI holds the latest one.
 
+use super::finding_log::LoggedFinding;
 use crate::format::AmbiFormat;
 use crate::meters::ChannelReading;
 use crate::sphere::Direction;
@@ -313,6 +314,9 @@ pub struct Snapshot {
     pub format_not_applied: Option<String>,
     /// The map of the selected band and method (live or integrated as selected).
     pub map: MapImage,
+    /// The format the map and its sources read the input as: `assumed_format`, or the
+    /// momentary comparison's ([`AnalysisSettings::map_format_override`](super::AnalysisSettings::map_format_override)).
+    pub map_format: AmbiFormat,
     /// Strongest directions in `map`, strongest first.
     pub sources: Vec<SourceReading>,
     /// DirAC per band, indexed by [`Band::index`].
@@ -324,6 +328,11 @@ pub struct Snapshot {
     pub omni: OmniReading,
     pub format_check: FormatCheck,
     pub findings: Vec<Finding>,
+    /// The live findings with their history: first seen, still active; most severe first
+    /// (see [`super::FindingLog`]).
+    pub finding_log: Vec<LoggedFinding>,
+    /// The finding log's times count from its last reset rather than from the start.
+    pub finding_log_from_reset: bool,
     pub health: EngineHealth,
     /// True while the map is frozen (hold).
     pub frozen: bool,

@@ -25,6 +25,9 @@ impl Engine {
         control: Arc<EngineControl>,
         slot: Arc<SnapshotSlot>,
     ) -> Result<(AudioSide, AnalysisThread), EngineError> {
+        // The generation of the settings the analyzer starts with: a change made while the
+        // thread starts is then still seen as a change.
+        let generation = control.generation();
         let requested = control.load();
         let mut analyzer = match Analyzer::new(setup, requested) {
             Ok(analyzer) => analyzer,
@@ -50,7 +53,7 @@ impl Engine {
         let thread_stop = stop.clone();
         let handle = std::thread::Builder::new()
             .name("fieldglass-analysis".into())
-            .spawn(move || run(analyzer, receiver, control, slot, thread_stop))
+            .spawn(move || run(analyzer, receiver, control, slot, thread_stop, generation))
             .map_err(|e| EngineError::Settings(format!("cannot start the analysis thread: {e}")))?;
         Ok((
             audio,
@@ -90,11 +93,11 @@ fn run(
     control: Arc<EngineControl>,
     slot: Arc<SnapshotSlot>,
     stop: Arc<AtomicBool>,
+    mut generation: u64,
 ) {
     // After silence the filters, STFT and integrators decay into subnormal numbers, which cost
     // tens to hundreds of cycles per operation on x86; the analysis never needs them.
     flush_subnormals_on_this_thread();
-    let mut generation = control.generation();
     let empty: &[f32] = &[];
     while !stop.load(Ordering::Acquire) {
         let g = control.generation();
@@ -114,6 +117,9 @@ fn run(
         if clips {
             analyzer.reset_clips();
             receiver.counters().reset_clips();
+        }
+        if control.take_finding_log_reset() {
+            analyzer.reset_finding_log();
         }
         receiver.recv_with(Duration::from_millis(20), |block| {
             let mut channels = [empty; MAX_CHANNELS];

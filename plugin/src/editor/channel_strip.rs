@@ -2,35 +2,56 @@
 //! reference the others are compared with.
 //!
 //! The bar is the channel's short-window level after conversion to SN3D (the level the
-//! over-omni test compares with W's); the thin tick is the raw sample-peak hold (what clips).
-//! A channel above W by more than the tolerance turns amber and is named in a warning line; a
-//! channel that has clipped shows a red box on top (click the row of boxes to clear them).
+//! louder-than-W test compares with W's); the thin tick is the raw sample-peak hold (what
+//! clips). A channel louder than W by more than the tolerance turns amber and is named in a
+//! warning line; a channel that has clipped shows a red box on top (click the row of boxes to
+//! clear them). Under each meter: the channel's number (1-based, file or host order) and, in
+//! dim, its ACN; text names channels as "channel 7 (ACN 6)" (`wording::channel_label`).
 
 use super::{EditorHost, Knob, Request, theme};
 use egui::{Rect, Sense, Stroke, pos2, vec2};
 use fieldglass_dsp::engine::{ChannelStatus, Snapshot};
+use fieldglass_dsp::wording;
 
 /// Meter scale, dBFS.
 const METER_MIN_DB: f64 = -60.0;
 const METER_MAX_DB: f64 = 0.0;
 
-/// Warning line naming every channel above W, or `None` when there is none.
+/// Warning line naming every channel louder than W, or `None` when there is none:
+/// "Louder than W: channel 7 (ACN 6)" / "Louder than W: channels 3 (ACN 2), 4 (ACN 3)".
 pub fn over_omni_text(snapshot: &Snapshot) -> Option<String> {
-    let names: Vec<String> = snapshot
+    let inputs: Vec<usize> = snapshot
         .channel_status
         .iter()
         .filter(|c| c.over_omni)
-        .map(channel_name)
+        .map(|c| c.input_index)
         .collect();
-    (!names.is_empty()).then(|| format!("Louder than W: {}", names.join(", ")))
+    (!inputs.is_empty()).then(|| {
+        format!(
+            "{}: {}",
+            capitalised(wording::LOUDER_THAN_W),
+            wording::channel_list(&inputs, |i| acn_of(snapshot, i))
+        )
+    })
 }
 
-/// "ACN 5" for spatial channels, "extra 17" (input index) otherwise.
+/// The ACN the snapshot gives input channel `input_index` (None for extra channels).
+pub fn acn_of(snapshot: &Snapshot, input_index: usize) -> Option<usize> {
+    snapshot.channel_status.get(input_index).and_then(|c| c.acn)
+}
+
+/// "channel 7 (ACN 6)", "channel 17 (extra)".
 pub fn channel_name(status: &ChannelStatus) -> String {
-    match status.acn {
-        Some(acn) => format!("ACN {acn}"),
-        None => format!("extra {}", status.input_index),
-    }
+    wording::channel_label(status.input_index, status.acn)
+}
+
+/// The wording's phrase at the start of a line.
+pub fn capitalised(phrase: &str) -> String {
+    let mut chars = phrase.chars();
+    chars
+        .next()
+        .map(|first| first.to_uppercase().chain(chars).collect())
+        .unwrap_or_default()
 }
 
 fn level_y(rect: Rect, level_db: f64) -> f32 {
@@ -62,7 +83,7 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
         )
         .step_by(0.1)
         .suffix(" dB");
-        let label = ui.label("Over-omni tolerance");
+        let label = ui.label("Louder-than-W tolerance");
         if ui.add(slider).labelled_by(label.id).changed() {
             host.set_knob(Knob::OverOmniToleranceDb, tolerance_db);
         }
@@ -94,10 +115,10 @@ fn draw_strip(ui: &mut egui::Ui, snapshot: &Snapshot, host: &mut dyn EditorHost)
     let (rect, strip_response) = ui.allocate_exact_size(size, Sense::hover());
     let painter = ui.painter_at(rect);
 
-    // Vertical layout: order labels, clip boxes, meters, ACN indices.
+    // Vertical layout: order labels, clip boxes, meters, channel numbers over ACNs.
     let order_label_h = 12.0;
     let clip_h = 7.0;
-    let index_h = 12.0;
+    let index_h = 22.0;
     let scale_w = 26.0;
     let meters_rect = Rect::from_min_max(
         pos2(
@@ -115,6 +136,17 @@ fn draw_strip(ui: &mut egui::Ui, snapshot: &Snapshot, host: &mut dyn EditorHost)
     let gap_w = 6.0;
     let column_w = ((meters_rect.width() - gap_w * gaps as f32) / channels.len() as f32).max(2.0);
     let bar_w = (column_w - 2.0).max(1.5);
+
+    // Captions of the two rows under the meters, left of them.
+    for (row, caption) in [(1.0, "ch"), (11.0, "ACN")] {
+        painter.text(
+            pos2(rect.left() + scale_w - 4.0, meters_rect.bottom() + row),
+            egui::Align2::RIGHT_TOP,
+            caption,
+            theme::tiny_font(),
+            theme::TEXT_DIM,
+        );
+    }
 
     // Scale on the left.
     for level_db in [0.0, -12.0, -24.0, -36.0, -48.0, -60.0] {
@@ -161,20 +193,27 @@ fn draw_strip(ui: &mut egui::Ui, snapshot: &Snapshot, host: &mut dyn EditorHost)
             pos2(x + (column_w + bar_w) / 2.0, meters_rect.bottom()),
         );
         draw_meter(&painter, column, channel, clip_row);
-        let index_text = channel
-            .acn
-            .map(|a| a.to_string())
-            .unwrap_or_else(|| "x".to_owned());
+        // The channel's number for people, and under it its ACN ("x" for extra channels).
         painter.text(
             pos2(column.center().x, meters_rect.bottom() + 1.0),
             egui::Align2::CENTER_TOP,
-            index_text,
+            (channel.input_index + 1).to_string(),
             theme::tiny_font(),
             if channel.acn == Some(0) {
                 theme::REFERENCE
             } else {
-                theme::TEXT_DIM
+                theme::TEXT
             },
+        );
+        painter.text(
+            pos2(column.center().x, meters_rect.bottom() + 11.0),
+            egui::Align2::CENTER_TOP,
+            channel
+                .acn
+                .map(|a| a.to_string())
+                .unwrap_or_else(|| "x".to_owned()),
+            theme::tiny_font(),
+            theme::TEXT_DIM,
         );
         if pointer.is_some_and(|p| {
             p.x >= x && p.x < x + column_w && p.y >= rect.top() && p.y <= rect.bottom()
@@ -290,9 +329,8 @@ fn channel_tooltip(channel: &ChannelStatus) -> String {
     };
     let r = &channel.reading;
     let mut text = format!(
-        "{}{place}, input {}\nLevel (SN3D) {} dBFS\nSample peak {} dBFS, hold {} dBFS\nTrue peak {} dBTP\nRMS {} dBFS\nClips {}",
-        channel_name(channel),
-        channel.input_index + 1,
+        "{}{place}\nLevel (SN3D) {} dBFS\nSample peak {} dBFS, hold {} dBFS\nTrue peak {} dBTP\nRMS {} dBFS\nClips {}",
+        capitalised(&channel_name(channel)),
         theme::format_db(channel.sn3d_level_dbfs),
         theme::format_db(r.sample_peak_dbfs),
         theme::format_db(r.peak_hold_dbfs),
@@ -304,7 +342,10 @@ fn channel_tooltip(channel: &ChannelStatus) -> String {
         text.push_str(&format!(", invalid samples {}", r.invalid_sample_count));
     }
     if channel.over_omni {
-        text.push_str("\nLouder than W by more than the tolerance");
+        text.push_str(&format!(
+            "\n{} by more than the tolerance",
+            capitalised(wording::LOUDER_THAN_W)
+        ));
     }
     if channel.silent {
         text.push_str("\nSilent while W carries signal");

@@ -1,6 +1,7 @@
 //! "Format check": order balance against the expected values of each normalisation, the
-//! verdict with its confidence, the effective order, findings in plain words, and a button that
-//! adopts the detected format — only when the user presses it.
+//! verdict with its likelihood, the effective order, and a button that adopts the detected
+//! format — only when the user presses it. The findings have their own list
+//! ([`super::findings_list`]).
 //!
 //! The bars show each order's energy relative to W with the stream read as ACN/SN3D (the
 //! ACN/SN3D hypothesis of the check), so the expected values for an incoherent field are:
@@ -11,10 +12,11 @@
 
 use super::{EditorHost, theme};
 use crate::params::FormatChoice;
-use egui::{Color32, Pos2, Stroke, pos2, vec2};
-use fieldglass_dsp::engine::{Severity, Snapshot};
+use egui::{Color32, Stroke, pos2, vec2};
+use fieldglass_dsp::engine::Snapshot;
 use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::format::fuma::maxn_gain;
+use fieldglass_dsp::wording;
 
 /// Bar scale of the order balance, dB.
 const BALANCE_MIN_DB: f64 = -12.0;
@@ -59,9 +61,9 @@ pub fn verdict_text(snapshot: &Snapshot) -> String {
     let check = &snapshot.format_check;
     match (check.ready, check.detected) {
         (true, Some(detected)) => format!(
-            "Looks like {} ({:.0}% likely)",
+            "Looks like {} ({})",
             detected.human_name(),
-            check.confidence * 100.0
+            wording::likelihood(check.confidence)
         ),
         _ => "Not enough signal yet to judge the format".to_owned(),
     }
@@ -124,25 +126,11 @@ pub fn draw(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn Edito
                     ui.add(
                         egui::ProgressBar::new(hypothesis.probability.clamp(0.0, 1.0) as f32)
                             .desired_width(120.0)
-                            .text(format!("{:.0}%", hypothesis.probability * 100.0)),
+                            .text(wording::likelihood(hypothesis.probability)),
                     );
                     ui.end_row();
                 }
             });
-    }
-
-    ui.add_space(4.0);
-    ui.label(egui::RichText::new("Findings").strong());
-    if snapshot.findings.is_empty() {
-        ui.label(egui::RichText::new("Nothing to report").color(theme::TEXT_DIM));
-    }
-    for finding in &snapshot.findings {
-        let colour = match finding.severity {
-            Severity::Info => theme::TEXT,
-            Severity::Warning => theme::WARNING,
-            Severity::Error => theme::CLIP,
-        };
-        ui.label(egui::RichText::new(&finding.message).color(colour));
     }
 }
 
@@ -188,45 +176,34 @@ fn draw_balance(ui: &mut egui::Ui, balance_db: &[f64]) {
             theme::small_font(),
             theme::TEXT,
         );
-        let mark = |x_db: f64, colour: Color32, shape: usize| {
+        // The expected values as ticks across the bar, one colour per normalisation (the
+        // report draws the same marks: `look::MARK_*`).
+        let mark = |x_db: f64, colour: Color32| {
             let x = balance_x(bars, x_db);
-            let c = pos2(x, row.center().y);
-            match shape {
-                0 => {
-                    painter.line_segment(
-                        [pos2(x, row.top() - 1.0), pos2(x, row.bottom() + 1.0)],
-                        Stroke::new(2.0, colour),
-                    );
-                }
-                1 => triangle(&painter, c, colour),
-                _ => diamond(&painter, c, colour),
-            }
+            painter.line_segment(
+                [pos2(x, row.top() - 1.0), pos2(x, row.bottom() + 1.0)],
+                Stroke::new(2.0, colour),
+            );
         };
-        mark(expected_sn3d_db(order), theme::MARK_SN3D, 0);
-        mark(expected_n3d_db(order), theme::MARK_N3D, 1);
+        mark(expected_sn3d_db(order), theme::MARK_SN3D);
+        mark(expected_n3d_db(order), theme::MARK_N3D);
         if let Some(fuma_db) = expected_fuma_db(order) {
-            mark(fuma_db, theme::MARK_FUMA, 2);
+            mark(fuma_db, theme::MARK_FUMA);
         }
     }
     // Legend and scale.
     let legend_y = rect.bottom() - 6.0;
     let mut x = bars.left();
-    for (text, colour, shape) in [
-        ("SN3D", theme::MARK_SN3D, 0),
-        ("N3D", theme::MARK_N3D, 1),
-        ("FuMa", theme::MARK_FUMA, 2),
+    for (text, colour) in [
+        ("SN3D", theme::MARK_SN3D),
+        ("N3D", theme::MARK_N3D),
+        ("FuMa", theme::MARK_FUMA),
     ] {
         let c = pos2(x + 4.0, legend_y);
-        match shape {
-            0 => {
-                painter.line_segment(
-                    [pos2(c.x, c.y - 5.0), pos2(c.x, c.y + 5.0)],
-                    Stroke::new(2.0, colour),
-                );
-            }
-            1 => triangle(&painter, c, colour),
-            _ => diamond(&painter, c, colour),
-        }
+        painter.line_segment(
+            [pos2(c.x, c.y - 5.0), pos2(c.x, c.y + 5.0)],
+            Stroke::new(2.0, colour),
+        );
         let r = painter.text(
             pos2(x + 11.0, legend_y),
             egui::Align2::LEFT_CENTER,
@@ -243,25 +220,6 @@ fn draw_balance(ui: &mut egui::Ui, balance_db: &[f64]) {
         theme::small_font(),
         theme::TEXT_DIM,
     );
-}
-
-fn triangle(painter: &egui::Painter, centre: Pos2, colour: Color32) {
-    let points = vec![
-        pos2(centre.x, centre.y - 5.0),
-        pos2(centre.x + 4.5, centre.y + 4.0),
-        pos2(centre.x - 4.5, centre.y + 4.0),
-    ];
-    painter.add(egui::Shape::convex_polygon(points, colour, Stroke::NONE));
-}
-
-fn diamond(painter: &egui::Painter, centre: Pos2, colour: Color32) {
-    let points = vec![
-        pos2(centre.x, centre.y - 5.0),
-        pos2(centre.x + 4.0, centre.y),
-        pos2(centre.x, centre.y + 5.0),
-        pos2(centre.x - 4.0, centre.y),
-    ];
-    painter.add(egui::Shape::convex_polygon(points, colour, Stroke::NONE));
 }
 
 #[cfg(test)]

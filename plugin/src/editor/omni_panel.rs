@@ -4,10 +4,8 @@
 use super::{EditorHost, Request, theme};
 use fieldglass_dsp::engine::Snapshot;
 
-/// The caution DESIGN.md asks the product to show.
-pub const CAUTION: &str = "Loud monitoring can damage hearing. These meters do not replace a \
-    calibrated monitoring chain. Loudness and peak limits come from each delivery's \
-    specification and local rules: this tool reports, it does not certify.";
+/// The caution DESIGN.md asks the product to show, worded once for every front end.
+pub use fieldglass_dsp::wording::CAUTION;
 
 fn lufs_text(value: Option<f64>) -> String {
     match value {

@@ -1,19 +1,26 @@
 //! "Sphere": the equirectangular energy map with grid, direction words, colour scale, source
-//! markers and a pointer readout, plus the controls that choose what the map shows.
+//! markers and a pointer readout over an optional picture, plus the controls that choose what
+//! the map shows: the assumed format (and a momentary comparison with the detected one),
+//! band, method, hold, whole programme, range (automatic by default), time constant and view.
 
+use super::channel_strip::capitalised;
+use super::picture_layer::PictureLayerState;
 use super::projection::{MapView, map_pixel_of};
 use super::theme;
-use super::{EditorHost, Knob, Request};
+use super::{EditorHost, EditorSettings, Knob, Request};
 use crate::params::{
-    BandChoice, MAP_RANGE_MAX_DB, MAP_RANGE_MIN_DB, MethodChoice, TIME_CONSTANT_MAX_MS,
-    TIME_CONSTANT_MIN_MS,
+    BandChoice, FormatChoice, MAP_RANGE_MAX_DB, MAP_RANGE_MIN_DB, MethodChoice,
+    TIME_CONSTANT_MAX_MS, TIME_CONSTANT_MIN_MS,
 };
 use egui::{Color32, Rect, Sense, Stroke, pos2, vec2};
+use fieldglass_dsp::beam::default_map_range_db;
 use fieldglass_dsp::engine::{MapImage, MapScale, Snapshot};
+use fieldglass_dsp::format::AmbiFormat;
 use fieldglass_dsp::render::{palette_rgb, render_map_rgba};
+use fieldglass_dsp::wording;
 
-/// Grid spacing over the map, degrees.
-const GRID_STEP_DEG: f64 = 30.0;
+/// Grid spacing over the map, degrees (the same in the report).
+const GRID_STEP_DEG: f64 = wording::GRID_STEP_DEG;
 /// Width of the colour scale bar and its labels, points.
 const SCALE_BAR_W: f32 = 54.0;
 
@@ -31,6 +38,32 @@ impl SpherePanelState {
     pub fn texture_sequence(&self) -> Option<u64> {
         self.texture_key.map(|k| k.0)
     }
+}
+
+/// The span of the colour scale the settings ask for, dB: with the automatic range, the
+/// default of the map's method at the stream's order (`beam::default_map_range_db`, the
+/// beam's highest side lobe), else the manual Map range; clamped to the control's range.
+pub fn map_range_db(settings: &EditorSettings, snapshot: Option<&Snapshot>) -> f32 {
+    let range_db = match snapshot {
+        Some(s) if settings.auto_map_range && s.order > 0 => {
+            default_map_range_db(s.map.method, s.order) as f32
+        }
+        Some(_) | None if settings.auto_map_range => {
+            default_map_range_db(settings.method.method(), 1) as f32
+        }
+        _ => settings.map_range_db,
+    };
+    range_db.clamp(MAP_RANGE_MIN_DB, MAP_RANGE_MAX_DB)
+}
+
+/// The format the momentary comparison would show: the detected one, when the check is ready,
+/// disagrees with the assumption, and the stream can be read as it.
+pub fn comparison_format(snapshot: &Snapshot) -> Option<AmbiFormat> {
+    let check = &snapshot.format_check;
+    check
+        .detected
+        .filter(|&d| check.ready && d != snapshot.assumed_format)
+        .filter(|d| d.check_order(snapshot.order).is_ok())
 }
 
 /// Top and bottom of the colour scale for `map` spanning `range_db` below its top, dB.
@@ -98,24 +131,41 @@ fn method_text(method: MethodChoice) -> &'static str {
 /// Width of the view sliders, so a row of four fits the panel at the default window size.
 const SLIDER_WIDTH: f32 = 64.0;
 
-/// A label followed by its control, kept together when the row wraps; the control is
-/// announced under the label's name (AccessKit).
+/// A label followed by its control, announced under the label's name (AccessKit). Both go
+/// straight into the (wrapping) row, so a narrow panel wraps instead of overflowing.
 fn labelled(
     ui: &mut egui::Ui,
     text: &str,
     add: impl FnOnce(&mut egui::Ui) -> egui::Response,
 ) -> egui::Response {
-    ui.horizontal(|ui| {
-        let label = ui.label(text);
-        add(ui).labelled_by(label.id)
-    })
-    .inner
+    let label = ui.label(text);
+    add(ui).labelled_by(label.id)
+}
+
+fn format_text(choice: FormatChoice) -> &'static str {
+    choice.format().human_name()
 }
 
 fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn EditorHost) {
     let settings = host.settings();
     let edges_hz = snapshot.map(|s| s.band_edges_hz);
     ui.horizontal_wrapped(|ui| {
+        let mut format = settings.assumed_format;
+        let order = snapshot.map(|s| s.order).filter(|&o| o > 0);
+        labelled(ui, "Assumed format", |ui| {
+            egui::ComboBox::from_id_salt("fieldglass_format")
+                .selected_text(format_text(format))
+                .show_ui(ui, |ui| {
+                    for choice in FormatChoice::allowed_for(order) {
+                        ui.selectable_value(&mut format, choice, format_text(choice));
+                    }
+                })
+                .response
+        });
+        if format != settings.assumed_format {
+            host.set_assumed_format(format);
+        }
+        draw_compare_button(ui, snapshot, host, &settings);
         let mut band = settings.band;
         labelled(ui, "Band", |ui| {
             egui::ComboBox::from_id_salt("fieldglass_band")
@@ -136,7 +186,7 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
             host.set_band(band);
         }
         let mut method = settings.method;
-        labelled(ui, "Method", |ui| {
+        labelled(ui, "Map method", |ui| {
             egui::ComboBox::from_id_salt("fieldglass_method")
                 .selected_text(method_text(method))
                 .show_ui(ui, |ui| {
@@ -157,8 +207,15 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
         }
         let mut view = settings.view;
         ui.checkbox(&mut view.hold, "Hold");
-        ui.checkbox(&mut view.show_integrated, "Whole session");
-        if ui.button("Reset session map").clicked() {
+        ui.checkbox(
+            &mut view.show_integrated,
+            capitalised(wording::WHOLE_PROGRAMME),
+        );
+        if ui
+            .button("Reset whole programme")
+            .on_hover_text("Starts the whole-programme map and figures afresh")
+            .clicked()
+        {
             host.request(Request::ResetSessionMap);
         }
         if view != settings.view {
@@ -167,15 +224,27 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
     });
     ui.horizontal_wrapped(|ui| {
         ui.spacing_mut().slider_width = SLIDER_WIDTH;
-        let mut range_db = settings.map_range_db;
+        let mut automatic = settings.auto_map_range;
+        // With the automatic range the slider shows (but does not take) the value in use.
+        let mut range_db = map_range_db(&settings, snapshot);
         let mut time_constant_ms = settings.time_constant_ms;
         let mut yaw_deg = settings.view_yaw_deg;
         let mut pitch_deg = settings.view_pitch_deg;
         let range = egui::Slider::new(&mut range_db, MAP_RANGE_MIN_DB..=MAP_RANGE_MAX_DB)
             .step_by(1.0)
             .suffix(" dB");
-        if labelled(ui, "Range", |ui| ui.add(range)).changed() {
+        if labelled(ui, "Map range", |ui| ui.add_enabled(!automatic, range)).changed() {
             host.set_knob(Knob::MapRangeDb, range_db);
+        }
+        if ui
+            .checkbox(&mut automatic, "Automatic range")
+            .on_hover_text(
+                "Range from the map method and order: the depth of the beam's highest side \
+                 lobe, so side lobes stay dark",
+            )
+            .changed()
+        {
+            host.set_auto_map_range(automatic);
         }
         let time_constant = egui::Slider::new(
             &mut time_constant_ms,
@@ -190,13 +259,13 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
         let yaw = egui::Slider::new(&mut yaw_deg, -180.0..=180.0)
             .step_by(1.0)
             .suffix("°");
-        if labelled(ui, "Yaw", |ui| ui.add(yaw)).changed() {
+        if labelled(ui, "View yaw", |ui| ui.add(yaw)).changed() {
             host.set_knob(Knob::ViewYawDeg, yaw_deg);
         }
         let pitch = egui::Slider::new(&mut pitch_deg, -90.0..=90.0)
             .step_by(1.0)
             .suffix("°");
-        let pitch_changed = labelled(ui, "Pitch", |ui| {
+        let pitch_changed = labelled(ui, "View pitch", |ui| {
             ui.add(pitch).on_hover_text(
                 "Shifts the picture up or down (an approximation of tilting the view)",
             )
@@ -206,6 +275,33 @@ fn draw_controls(ui: &mut egui::Ui, snapshot: Option<&Snapshot>, host: &mut dyn 
             host.set_knob(Knob::ViewPitchDeg, pitch_deg);
         }
     });
+}
+
+/// "Compare with detected": while the button is held, the map reads the input as the
+/// detected format; on release it returns to the assumed one. Nothing changes the assumption.
+fn draw_compare_button(
+    ui: &mut egui::Ui,
+    snapshot: Option<&Snapshot>,
+    host: &mut dyn EditorHost,
+    settings: &EditorSettings,
+) {
+    let target = snapshot.and_then(comparison_format);
+    let hint = match target {
+        Some(format) => format!(
+            "Hold to see the map read as {} (the detected format); release to return. \
+             The assumed format does not change.",
+            format.human_name()
+        ),
+        None => "Available when the format check detects another format".to_owned(),
+    };
+    let button = ui
+        .add_enabled(target.is_some(), egui::Button::new("Compare with detected"))
+        .on_hover_text(hint)
+        .on_disabled_hover_text("Available when the format check detects another format");
+    let held = target.filter(|_| button.is_pointer_button_down_on());
+    if held != settings.map_format_override {
+        host.set_map_format_override(held);
+    }
 }
 
 /// Re-renders the texture only when the snapshot or the colour scale changed.
@@ -237,10 +333,22 @@ fn update_texture(
 pub fn draw(
     ui: &mut egui::Ui,
     state: &mut SpherePanelState,
+    picture: &PictureLayerState,
     snapshot: Option<&Snapshot>,
     host: &mut dyn EditorHost,
 ) {
-    ui.heading("Sphere");
+    ui.horizontal(|ui| {
+        ui.heading("Sphere");
+        if let Some(s) = snapshot.filter(|s| s.map_format != s.assumed_format) {
+            ui.label(
+                egui::RichText::new(format!(
+                    "Map read as {} for comparison",
+                    s.map_format.human_name()
+                ))
+                .color(theme::WARNING),
+            );
+        }
+    });
     draw_controls(ui, snapshot, host);
     let settings = host.settings();
     let Some(snapshot) = snapshot else {
@@ -250,7 +358,7 @@ pub fn draw(
     let map = &snapshot.map;
     let has_map = map.width > 0 && map.height > 0 && map.values_db.len() >= map.width * map.height;
     let view = MapView::new(settings.view_yaw_deg as f64, settings.view_pitch_deg as f64);
-    let (floor_db, ceiling_db) = colour_scale_db(map, settings.map_range_db);
+    let (floor_db, ceiling_db) = colour_scale_db(map, map_range_db(&settings, Some(snapshot)));
 
     // Map rectangle: 2:1, fitted into the room left for it (two text lines below).
     let room = ui.available_size() - vec2(SCALE_BAR_W, 48.0);
@@ -265,13 +373,25 @@ pub fn draw(
     let painter = ui.painter_at(map_rect);
     painter.rect_filled(map_rect, 0.0, theme::BACKGROUND);
 
+    let (u0, v_offset) = view.texture_placement();
+    let image_rect = map_rect.translate(vec2(0.0, v_offset as f32 * map_rect.height()));
+    // The picture first, turned by its offset and the view yaw alike; the map over it at
+    // 1 − opacity, the same blend as `picture::composite_under`.
+    let picture_settings = host.picture_settings();
+    let mut map_tint = Color32::WHITE;
+    if let Some(loaded) = picture.loaded()
+        && picture_settings.opacity > 0.0
+    {
+        let pu0 = u0 as f32 + picture_settings.yaw_offset_deg / 360.0;
+        let uv = Rect::from_min_max(pos2(pu0, 0.0), pos2(pu0 + 1.0, 1.0));
+        painter.image(loaded.texture.id(), image_rect, uv, Color32::WHITE);
+        map_tint = Color32::WHITE.gamma_multiply(1.0 - picture_settings.opacity);
+    }
     if has_map {
         update_texture(ui, state, snapshot, floor_db, ceiling_db);
         if let Some(texture) = &state.texture {
-            let (u0, v_offset) = view.texture_placement();
-            let image_rect = map_rect.translate(vec2(0.0, v_offset as f32 * map_rect.height()));
             let uv = Rect::from_min_max(pos2(u0 as f32, 0.0), pos2(u0 as f32 + 1.0, 1.0));
-            painter.image(texture.id(), image_rect, uv, Color32::WHITE);
+            painter.image(texture.id(), image_rect, uv, map_tint);
         }
     } else {
         painter.text(
@@ -335,10 +455,16 @@ pub fn draw(
     }
     let mut state_words = Vec::new();
     if snapshot.frozen {
-        state_words.push("Held");
+        state_words.push("Held".to_owned());
     }
     if map.integrated {
-        state_words.push("Whole session");
+        state_words.push(capitalised(wording::WHOLE_PROGRAMME));
+    }
+    if snapshot.map_format != snapshot.assumed_format {
+        state_words.push(format!(
+            "Read as {} for comparison",
+            snapshot.map_format.human_name()
+        ));
     }
     if !state_words.is_empty() {
         // Above the azimuth numbers along the bottom edge, where markers are rare.
@@ -456,6 +582,22 @@ fn draw_labels(painter: &egui::Painter, rect: Rect, to_screen: &dyn Fn(f64, f64)
             theme::TEXT_DIM,
         );
     }
+    for (elevation_deg, word, anchor) in [
+        (90.0, wording::UP, egui::Align2::LEFT_TOP),
+        (-90.0, wording::DOWN, egui::Align2::LEFT_BOTTOM),
+    ] {
+        let y = to_screen(0.0, elevation_deg).y;
+        // Below the direction words along the top edge, above the azimuth numbers along the
+        // bottom edge.
+        let y = y.clamp(rect.top() + 16.0, rect.bottom() - 14.0);
+        painter.text(
+            pos2(rect.left() + 2.0, y),
+            anchor,
+            word,
+            font.clone(),
+            theme::TEXT,
+        );
+    }
     for elevation_deg in [-60.0, -30.0, 0.0, 30.0, 60.0] {
         let y = to_screen(0.0, elevation_deg).y;
         painter.text(
@@ -467,13 +609,13 @@ fn draw_labels(painter: &egui::Painter, rect: Rect, to_screen: &dyn Fn(f64, f64)
         );
     }
     for (azimuth_deg, word) in [
-        (0.0, "front"),
-        (90.0, "left"),
-        (-90.0, "right"),
-        (180.0, "behind"),
+        (0.0, wording::FRONT),
+        (90.0, wording::LEFT),
+        (-90.0, wording::RIGHT),
+        (180.0, wording::BACK),
     ] {
         let x = to_screen(azimuth_deg, 0.0).x;
-        // "behind" sits on the seam; keep it inside the rectangle.
+        // "back" sits on the seam; keep it inside the rectangle.
         let x = x.clamp(rect.left() + 24.0, rect.right() - 24.0);
         painter.text(
             pos2(x, rect.top() + 3.0),

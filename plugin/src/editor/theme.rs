@@ -1,34 +1,46 @@
 //! Colours, sizes and text formats of the editor: a dark, quiet screen where only the data
-//! carries colour (the energy palette comes from `fieldglass_dsp::render`).
+//! carries colour (the energy palette comes from `fieldglass_dsp::render`). The colours are
+//! those of [`crate::look`], shared with the report; words come from
+//! `fieldglass_dsp::wording`.
 
+use crate::look;
 use egui::{Color32, FontId, Visuals};
 
+const fn colour(rgb: look::Rgb) -> Color32 {
+    Color32::from_rgb(rgb[0], rgb[1], rgb[2])
+}
+
 /// Window background.
-pub const BACKGROUND: Color32 = Color32::from_rgb(18, 20, 24);
+pub const BACKGROUND: Color32 = colour(look::BACKGROUND);
 /// Panel background, a step lighter than the window.
-pub const PANEL: Color32 = Color32::from_rgb(24, 27, 32);
+pub const PANEL: Color32 = colour(look::PANEL);
 /// Ordinary text.
-pub const TEXT: Color32 = Color32::from_rgb(196, 200, 206);
+pub const TEXT: Color32 = colour(look::TEXT);
 /// Secondary text (units, hints, the caution line).
-pub const TEXT_DIM: Color32 = Color32::from_rgb(128, 134, 142);
+pub const TEXT_DIM: Color32 = colour(look::TEXT_DIM);
 /// Grid lines over the map: light and thin so the energy stays readable.
-pub const GRID: Color32 = Color32::from_rgba_premultiplied(150, 155, 160, 70);
+pub const GRID: Color32 = Color32::from_rgba_unmultiplied_const(
+    look::GRID[0],
+    look::GRID[1],
+    look::GRID[2],
+    (look::GRID_ALPHA * 255.0) as u8,
+);
 /// Meter bar of an ordinary channel.
-pub const METER: Color32 = Color32::from_rgb(120, 140, 150);
+pub const METER: Color32 = colour(look::METER);
 /// Meter of W and the W reference line: the one channel the others are compared with.
-pub const REFERENCE: Color32 = Color32::from_rgb(232, 236, 240);
-/// Empty meter background.
+pub const REFERENCE: Color32 = colour(look::REFERENCE);
+/// Empty meter background: between the panel and the meter colour (editor only).
 pub const METER_BACK: Color32 = Color32::from_rgb(34, 38, 44);
-/// Over-omni and other warnings (amber is common practice for "check this").
-pub const WARNING: Color32 = Color32::from_rgb(230, 160, 40);
-/// Clipping (red is common practice for overload).
-pub const CLIP: Color32 = Color32::from_rgb(220, 60, 50);
+/// "Louder than W" and other warnings.
+pub const WARNING: Color32 = colour(look::WARNING);
+/// Clipping and errors.
+pub const CLIP: Color32 = colour(look::CLIP);
 /// Marks of expected values in the format check.
-pub const MARK_SN3D: Color32 = Color32::from_rgb(235, 235, 235);
-pub const MARK_N3D: Color32 = Color32::from_rgb(110, 170, 230);
-pub const MARK_FUMA: Color32 = Color32::from_rgb(230, 200, 90);
+pub const MARK_SN3D: Color32 = colour(look::MARK_SN3D);
+pub const MARK_N3D: Color32 = colour(look::MARK_N3D);
+pub const MARK_FUMA: Color32 = colour(look::MARK_FUMA);
 /// Source markers on the map.
-pub const SOURCE_MARK: Color32 = Color32::from_rgb(250, 250, 250);
+pub const SOURCE_MARK: Color32 = colour(look::SOURCE_MARK);
 
 /// Small text painted over graphics (axis numbers, ACN indices).
 pub fn small_font() -> FontId {
@@ -61,20 +73,14 @@ pub fn format_db(value_db: f64) -> String {
     }
 }
 
-/// Whole degrees without a "-0".
+/// Whole degrees without a "-0" (`wording::degrees`).
 pub fn format_deg(value_deg: f64) -> String {
-    let rounded = value_deg.round();
-    let rounded = if rounded == 0.0 { 0.0 } else { rounded };
-    format!("{rounded:.0}")
+    fieldglass_dsp::wording::degrees(value_deg)
 }
 
-/// "az -35°, el 0°": the direction text used by readouts and markers.
+/// "az -35°, el 0°": the direction text used by readouts and markers (`wording::direction`).
 pub fn format_direction(azimuth_deg: f64, elevation_deg: f64) -> String {
-    format!(
-        "az {}°, el {}°",
-        format_deg(azimuth_deg),
-        format_deg(elevation_deg)
-    )
+    fieldglass_dsp::wording::direction(azimuth_deg, elevation_deg)
 }
 
 #[cfg(test)]
