@@ -5,8 +5,8 @@ use super::json::to_json_string;
 use super::run::{CompareResult, tidy};
 use crate::scan::CliError;
 use base64::Engine as _;
+use fieldglass_dsp::beam::default_map_range_db;
 use fieldglass_dsp::engine::{Band, MapImage, Severity, SourceReading};
-use fieldglass_dsp::render::render_map_rgba;
 use std::fmt::Write;
 use std::path::{Path, PathBuf};
 
@@ -17,7 +17,6 @@ pub const CANDIDATE_MAP_FILE: &str = "map-candidate.png";
 pub const DIFFERENCE_MAP_FILE: &str = "map-difference.png";
 
 /// Range of the energy maps below their maximum, dB.
-const MAP_RANGE_DB: f32 = 24.0;
 /// The difference map runs from −this (candidate quieter) to +this dB.
 const DIFFERENCE_RANGE_DB: f32 = 12.0;
 
@@ -72,12 +71,12 @@ fn difference_rgb(db: f32) -> [u8; 3] {
 
 /// Candidate minus reference, each map relative to its own maximum (a level change alone does
 /// not show; where the energy sits does). `None` if the grids differ.
-fn difference(reference: &MapImage, candidate: &MapImage) -> Option<Vec<f32>> {
+fn difference(reference: &MapImage, candidate: &MapImage, range_db: f32) -> Option<Vec<f32>> {
     (reference.width == candidate.width
         && reference.height == candidate.height
         && reference.values_db.len() == candidate.values_db.len())
     .then(|| {
-        let floor = -MAP_RANGE_DB - 6.0;
+        let floor = -range_db - 6.0;
         reference
             .values_db
             .iter()
@@ -87,32 +86,28 @@ fn difference(reference: &MapImage, candidate: &MapImage) -> Option<Vec<f32>> {
     })
 }
 
-/// Marks sources on an RGBA picture as small light rings.
-fn mark_sources(rgba: &mut [u8], width: usize, height: usize, sources: &[SourceReading]) {
-    for s in sources {
-        let cx = (180.0 - s.direction.azimuth_deg) / 360.0 * width as f64;
-        let cy = (90.0 - s.direction.elevation_deg) / 180.0 * height as f64;
-        let r = width as f64 / 90.0;
-        for y in (cy - r - 2.0).floor() as i64..=(cy + r + 2.0).ceil() as i64 {
-            for x in (cx - r - 2.0).floor() as i64..=(cx + r + 2.0).ceil() as i64 {
-                let d = ((x as f64 - cx).powi(2) + (y as f64 - cy).powi(2)).sqrt();
-                if (d - r).abs() < 0.9 {
-                    let x = x.rem_euclid(width as i64) as usize;
-                    if (0..height as i64).contains(&y) {
-                        let p = (y as usize * width + x) * 4;
-                        rgba[p..p + 3].copy_from_slice(&[236, 238, 242]);
-                    }
-                }
-            }
-        }
-    }
-}
-
-fn map_png(map: &MapImage, sources: &[SourceReading]) -> Result<Vec<u8>, String> {
-    let mut rgba = Vec::new();
-    render_map_rgba(map, map.max_db - MAP_RANGE_DB, map.max_db, &mut rgba);
-    mark_sources(&mut rgba, map.width, map.height, sources);
-    png(map.width, map.height, &rgba)
+/// A whole-programme map as the scan report draws it (one renderer: grid, direction words,
+/// colour scale and numbered source markers).
+fn map_png(map: &MapImage, sources: &[SourceReading], range_db: f64) -> Result<Vec<u8>, String> {
+    let marks: Vec<(f64, f64, f64)> = sources
+        .iter()
+        .map(|s| {
+            (
+                s.direction.azimuth_deg,
+                s.direction.elevation_deg,
+                s.level_db,
+            )
+        })
+        .collect();
+    crate::scan::charts::map_png(
+        &map.values_db,
+        map.width,
+        map.height,
+        range_db,
+        0.0,
+        &marks,
+        None,
+    )
 }
 
 fn difference_png(width: usize, height: usize, values: &[f32]) -> Result<Vec<u8>, String> {
@@ -181,16 +176,23 @@ pub fn write_report(result: &CompareResult, dir: &Path) -> Result<PathBuf, CliEr
     else {
         return Err(fail("the report", "no full-band map".into()));
     };
+    // The range the editor and the scan report use for the reference's method and order.
+    let range_db = default_map_range_db(
+        result.reference.options.method,
+        result.reference.layout.order,
+    );
     let mut pictures = Vec::new();
     pictures.push((
         REFERENCE_MAP_FILE,
-        map_png(&ref_band.map, &ref_band.sources).map_err(|e| fail(REFERENCE_MAP_FILE, e))?,
+        map_png(&ref_band.map, &ref_band.sources, range_db)
+            .map_err(|e| fail(REFERENCE_MAP_FILE, e))?,
     ));
     pictures.push((
         CANDIDATE_MAP_FILE,
-        map_png(&cand_band.map, &cand_band.sources).map_err(|e| fail(CANDIDATE_MAP_FILE, e))?,
+        map_png(&cand_band.map, &cand_band.sources, range_db)
+            .map_err(|e| fail(CANDIDATE_MAP_FILE, e))?,
     ));
-    if let Some(values) = difference(&ref_band.map, &cand_band.map) {
+    if let Some(values) = difference(&ref_band.map, &cand_band.map, range_db as f32) {
         pictures.push((
             DIFFERENCE_MAP_FILE,
             difference_png(ref_band.map.width, ref_band.map.height, &values)
@@ -267,7 +269,7 @@ pub fn write_report(result: &CompareResult, dir: &Path) -> Result<PathBuf, CliEr
         h,
         "<h2>Where things are</h2><div class=\"maps\"><figure><img src=\"{}\" alt=\"Reference map\"><figcaption>Reference, whole programme, full band ({} dB range; rings mark the sources). Front in the centre, left of centre is left.</figcaption></figure><figure><img src=\"{}\" alt=\"Candidate map\"><figcaption>Candidate, same scale.</figcaption></figure>",
         embed(REFERENCE_MAP_FILE),
-        MAP_RANGE_DB,
+        range_db,
         embed(CANDIDATE_MAP_FILE)
     );
     if pictures.iter().any(|(n, _)| *n == DIFFERENCE_MAP_FILE) {
@@ -342,7 +344,8 @@ pub fn write_report(result: &CompareResult, dir: &Path) -> Result<PathBuf, CliEr
     );
     let _ = writeln!(
         h,
-        "<p class=\"muted\">Loudness and peak limits of a delivery are set by its specification; this report compares, it does not certify. fieldglass {}.</p></main></body></html>",
+        "<p class=\"muted\">{} fieldglass {}.</p></main></body></html>",
+        crate::scan::report_html::escape(fieldglass_dsp::wording::CAUTION),
         env!("CARGO_PKG_VERSION")
     );
     let path = dir.join(REPORT_FILE);
