@@ -32,12 +32,12 @@ struct Cli {
 
 #[derive(Subcommand, Debug)]
 enum Command {
-    /// Scan a WAV/RF64/BW64 or Ogg Opus file (or the demo scene) and report format, levels, loudness and sources.
+    /// Scan WAV/RF64/BW64/Ogg Opus files or folders (or the demo scene): format, levels, loudness, sources.
     Scan(ScanArgs),
     /// Compare a delivery (CANDIDATE) with its master (REFERENCE): offset, rotation or mirror,
     /// channel faults, level and detail lost per order.
     Compare(CompareArgs),
-    /// Write the demo scene (a harbour-front terrace at dusk) to a WAV file.
+    /// Write the demo scene (harbour-front terrace at dusk, synthesised) to a WAV or BW64 file.
     Demo(DemoArgs),
     /// Build the batch index page from JSON lines written by `scan --json-lines` (e.g. on
     /// other machines).
