@@ -2,12 +2,11 @@
 //! serialised with serde; numbers that are not finite become `null`.
 
 use super::findings::CompareFinding;
-use super::run::{CompareResult, tidy};
+use super::run::CompareResult;
 use crate::scan::ScanResult;
-use crate::scan::json::{Assumed, Input};
+use crate::scan::json::{Assumed, Input, level, num, rounded};
 use fieldglass_dsp::compare::coherence::CoherenceFigures;
 use fieldglass_dsp::engine::{Band, SourceReading};
-use fieldglass_dsp::meters::LEVEL_FLOOR_DB;
 use fieldglass_dsp::sh::order_degree;
 use serde::Serialize;
 
@@ -164,18 +163,6 @@ pub struct FindingEntry {
     pub message: String,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub channels: Option<Vec<usize>>,
-}
-
-fn num(x: f64) -> Option<f64> {
-    x.is_finite().then_some(x)
-}
-
-fn rounded(x: Option<f64>, decimals: i32) -> Option<f64> {
-    x.and_then(num).map(|v| tidy(v, decimals))
-}
-
-fn level(x: f64) -> Option<f64> {
-    num(x).filter(|&v| v > LEVEL_FLOOR_DB)
 }
 
 fn side(scan: &ScanResult) -> Side {

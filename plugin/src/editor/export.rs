@@ -36,12 +36,10 @@ use crate::params::PictureSettings;
 use crate::picture::Picture;
 use crate::scan::charts::{Backdrop, map_png};
 use crate::scan::json::{
-    Analysis, Channel, Detected, ExtraChannel, Hypothesis, Omni, Source, StoredW, Tool,
-    normalization_label, ordering_label,
+    Analysis, Channel, Detected, ExtraChannel, Omni, Source, Tool, balance, channel_entries,
+    detected_entry, normalization_label, num, omni_entry, ordering_label, rounded, source,
 };
-use fieldglass_dsp::engine::{ChannelProgramme, MapScale, Snapshot};
-use fieldglass_dsp::format::AmbiFormat;
-use fieldglass_dsp::meters::LEVEL_FLOOR_DB;
+use fieldglass_dsp::engine::{MapScale, Snapshot};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -106,67 +104,6 @@ pub struct LoggedFindingEntry {
     pub active: bool,
 }
 
-fn num(x: f64) -> Option<f64> {
-    x.is_finite().then_some(x)
-}
-
-fn rounded(x: Option<f64>, decimals: i32) -> Option<f64> {
-    let k = 10f64.powi(decimals);
-    x.map(|v| (v * k).round() / k)
-}
-
-/// A level, or null at the meters' floor (silence).
-fn level(x: f64) -> Option<f64> {
-    rounded(num(x).filter(|&v| v > LEVEL_FLOOR_DB), 3)
-}
-
-fn spatial(c: &ChannelProgramme) -> Option<Channel> {
-    Some(Channel {
-        index: c.input_index,
-        acn: c.acn?,
-        order: c.order?,
-        degree: c.degree?,
-        peak_dbfs: level(c.sample_peak_dbfs),
-        true_peak_dbtp: level(c.true_peak_dbtp),
-        rms_dbfs: level(c.rms_dbfs),
-        sn3d_rms_dbfs: level(c.sn3d_rms_dbfs),
-        clipped_samples: c.clip_count,
-        longest_clip_run: c.longest_clip_run,
-        invalid_samples: c.invalid_samples,
-        dc_offset: rounded(num(c.dc_offset), 7),
-        over_omni: c.over_omni,
-        silent: c.silent,
-    })
-}
-
-fn extra(c: &ChannelProgramme) -> ExtraChannel {
-    ExtraChannel {
-        index: c.input_index,
-        peak_dbfs: level(c.sample_peak_dbfs),
-        true_peak_dbtp: level(c.true_peak_dbtp),
-        rms_dbfs: level(c.rms_dbfs),
-        clipped_samples: c.clip_count,
-        longest_clip_run: c.longest_clip_run,
-        invalid_samples: c.invalid_samples,
-        dc_offset: rounded(num(c.dc_offset), 7),
-        silent: c.silent,
-    }
-}
-
-fn balance(values: &[f64]) -> Vec<Option<f64>> {
-    values
-        .iter()
-        .map(|&v| rounded(num(v).filter(|&v| v > -200.0), 3))
-        .collect()
-}
-
-fn format_labels(f: AmbiFormat) -> (&'static str, &'static str) {
-    (
-        ordering_label(f.ordering),
-        normalization_label(f.normalization),
-    )
-}
-
 /// The JSON document of what the editor shows.
 pub fn view_document(
     snapshot: &Snapshot,
@@ -175,25 +112,12 @@ pub fn view_document(
     picture_shown: bool,
 ) -> ViewDocument {
     let check = &snapshot.format_check;
-    let detected = check.detected.filter(|_| check.ready);
-    let mut hypotheses: Vec<Hypothesis> = check
-        .hypotheses
-        .iter()
-        .map(|h| Hypothesis {
-            format: h.format.label(),
-            probability: rounded(num(h.probability), 4),
-            steering_fit: rounded(num(h.steering_fit), 4),
-            order_balance_db: balance(&h.order_balance_db),
-        })
-        .collect();
-    hypotheses.sort_by(|a, b| {
-        b.probability
-            .unwrap_or(0.0)
-            .total_cmp(&a.probability.unwrap_or(0.0))
-    });
-    let (ordering, normalization) = format_labels(snapshot.assumed_format);
+    let (ordering, normalization) = (
+        ordering_label(snapshot.assumed_format.ordering),
+        normalization_label(snapshot.assumed_format.normalization),
+    );
     let programme = &snapshot.programme;
-    let omni = &programme.omni;
+    let (channels, extra_channels) = channel_entries(&programme.channels);
     let map = &snapshot.map;
     ViewDocument {
         schema: SCHEMA,
@@ -208,14 +132,7 @@ pub fn view_document(
             normalization,
             order: snapshot.order,
         },
-        detected: Detected {
-            ordering: detected.map(|d| ordering_label(d.ordering)),
-            normalization: detected.map(|d| normalization_label(d.normalization)),
-            order: snapshot.order,
-            effective_order: check.effective_order,
-            confidence: detected.and_then(|_| rounded(num(check.confidence), 4)),
-            hypotheses,
-        },
+        detected: detected_entry(check, snapshot.order, check.effective_order),
         analysis: Analysis {
             method: map.method.label(),
             band_edges_hz: snapshot.band_edges_hz.map(num),
@@ -239,37 +156,11 @@ pub fn view_document(
             picture_opacity: picture_shown.then_some(f64::from(picture.opacity)),
             picture_yaw_deg: picture_shown.then_some(f64::from(picture.yaw_offset_deg)),
         },
-        sources: snapshot
-            .sources
-            .iter()
-            .map(|s| Source {
-                azimuth_deg: rounded(num(s.direction.azimuth_deg), 2),
-                elevation_deg: rounded(num(s.direction.elevation_deg), 2),
-                level_db: rounded(num(s.level_db), 2),
-            })
-            .collect(),
+        sources: snapshot.sources.iter().map(source).collect(),
         order_balance_db: balance(&programme.order_balance_db),
-        channels: programme.channels.iter().filter_map(spatial).collect(),
-        extra_channels: programme
-            .channels
-            .iter()
-            .filter(|c| c.is_extra())
-            .map(extra)
-            .collect(),
-        omni: Omni {
-            integrated_lufs: rounded(omni.integrated_lufs.and_then(num), 2),
-            max_momentary_lufs: rounded(omni.max_momentary_lufs.and_then(num), 2),
-            max_short_term_lufs: rounded(omni.max_short_term_lufs.and_then(num), 2),
-            true_peak_dbtp: level(omni.true_peak_dbtp),
-            peak_dbfs: level(omni.sample_peak_dbfs),
-            rms_dbfs: level(omni.rms_dbfs),
-            conversion_gain_db: rounded(num(omni.conversion_gain_db), 3),
-            stored: StoredW {
-                true_peak_dbtp: level(omni.as_stored(omni.true_peak_dbtp)),
-                peak_dbfs: level(omni.as_stored(omni.sample_peak_dbfs)),
-                rms_dbfs: level(omni.as_stored(omni.rms_dbfs)),
-            },
-        },
+        channels,
+        extra_channels,
+        omni: omni_entry(&programme.omni),
         findings: snapshot
             .finding_log
             .iter()

@@ -3,7 +3,7 @@
 //! becomes `null`.
 
 use super::run::{ChannelSummary, ScanResult};
-use fieldglass_dsp::engine::{Finding, SourceReading};
+use fieldglass_dsp::engine::{Finding, FormatCheck, OmniProgramme, SourceReading};
 use fieldglass_dsp::format::{AmbiFormat, ChannelOrdering, Normalization};
 use fieldglass_dsp::meters::LEVEL_FLOOR_DB;
 use serde::Serialize;
@@ -262,20 +262,24 @@ pub struct FindingEntry {
     pub channels: Option<Vec<usize>>,
 }
 
+// The number helpers and entry builders below are shared by every JSON the program writes
+// (`scan`, the editor's saved view, `compare`), so one figure reads the same in all of them.
+
 /// `Some(x)` for a finite number, `None` (JSON null) otherwise.
-fn num(x: f64) -> Option<f64> {
+pub fn num(x: f64) -> Option<f64> {
     x.is_finite().then_some(x)
 }
 
 /// Like [`num`], but levels at the meters' floor (no signal at all) are null too.
-fn level(x: f64) -> Option<f64> {
+pub fn level(x: f64) -> Option<f64> {
     num(x).filter(|&v| v > LEVEL_FLOOR_DB)
 }
 
-/// Rounds to `decimals` places (keeps the document readable; far below any meter's accuracy).
-fn rounded(x: Option<f64>, decimals: i32) -> Option<f64> {
+/// Rounds to `decimals` places (keeps the document readable; far below any meter's accuracy),
+/// without a "-0".
+pub fn rounded(x: Option<f64>, decimals: i32) -> Option<f64> {
     let k = 10f64.powi(decimals);
-    x.map(|v| (v * k).round() / k)
+    x.map(|v| (v * k).round() / k + 0.0)
 }
 
 pub fn ordering_label(o: ChannelOrdering) -> &'static str {
@@ -293,7 +297,7 @@ pub fn normalization_label(n: Normalization) -> &'static str {
     }
 }
 
-fn source(s: &SourceReading) -> Source {
+pub fn source(s: &SourceReading) -> Source {
     Source {
         azimuth_deg: rounded(num(s.direction.azimuth_deg), 2),
         elevation_deg: rounded(num(s.direction.elevation_deg), 2),
@@ -310,11 +314,70 @@ fn finding(f: &Finding) -> FindingEntry {
     }
 }
 
-fn balance(values: &[f64]) -> Vec<Option<f64>> {
+/// Energy per order relative to W, dB; null below −200 dB.
+pub fn balance(values: &[f64]) -> Vec<Option<f64>> {
     values
         .iter()
         .map(|&v| rounded(num(v).filter(|&v| v > -200.0), 3))
         .collect()
+}
+
+/// The spatial and the extra channels of the engine's programme figures, in input order.
+pub fn channel_entries(channels: &[ChannelSummary]) -> (Vec<Channel>, Vec<ExtraChannel>) {
+    (
+        channels.iter().filter_map(spatial).collect(),
+        channels
+            .iter()
+            .filter(|c| c.is_extra())
+            .map(extra)
+            .collect(),
+    )
+}
+
+/// W's programme figures, SN3D-equivalent and as stored.
+pub fn omni_entry(omni: &OmniProgramme) -> Omni {
+    Omni {
+        integrated_lufs: rounded(omni.integrated_lufs.and_then(num), 2),
+        max_momentary_lufs: rounded(omni.max_momentary_lufs.and_then(num), 2),
+        max_short_term_lufs: rounded(omni.max_short_term_lufs.and_then(num), 2),
+        true_peak_dbtp: rounded(level(omni.true_peak_dbtp), 2),
+        peak_dbfs: rounded(level(omni.sample_peak_dbfs), 2),
+        rms_dbfs: rounded(level(omni.rms_dbfs), 2),
+        conversion_gain_db: rounded(num(omni.conversion_gain_db), 3),
+        stored: StoredW {
+            true_peak_dbtp: rounded(level(omni.as_stored(omni.true_peak_dbtp)), 2),
+            peak_dbfs: rounded(level(omni.as_stored(omni.sample_peak_dbfs)), 2),
+            rms_dbfs: rounded(level(omni.as_stored(omni.rms_dbfs)), 2),
+        },
+    }
+}
+
+/// The format check's verdict (only once it is ready) and every hypothesis, most likely first.
+pub fn detected_entry(check: &FormatCheck, order: usize, effective_order: usize) -> Detected {
+    let detected = check.detected.filter(|_| check.ready);
+    let mut hypotheses: Vec<Hypothesis> = check
+        .hypotheses
+        .iter()
+        .map(|h| Hypothesis {
+            format: h.format.label(),
+            probability: rounded(num(h.probability), 4),
+            steering_fit: rounded(num(h.steering_fit), 4),
+            order_balance_db: balance(&h.order_balance_db),
+        })
+        .collect();
+    hypotheses.sort_by(|a, b| {
+        b.probability
+            .unwrap_or(0.0)
+            .total_cmp(&a.probability.unwrap_or(0.0))
+    });
+    Detected {
+        ordering: detected.map(|f| ordering_label(f.ordering)),
+        normalization: detected.map(|f| normalization_label(f.normalization)),
+        order,
+        effective_order,
+        confidence: detected.and_then(|_| rounded(num(check.confidence), 4)),
+        hypotheses,
+    }
 }
 
 fn spatial(c: &ChannelSummary) -> Option<Channel> {
@@ -362,24 +425,7 @@ pub fn document(result: &ScanResult) -> ScanDocument {
     let snap = &result.snapshot;
     let check = &snap.format_check;
     let (ordering, normalization) = format_labels(result.options.assumed);
-    let detected = check.detected.filter(|_| check.ready);
-    let mut hypotheses: Vec<Hypothesis> = check
-        .hypotheses
-        .iter()
-        .map(|h| Hypothesis {
-            format: h.format.label(),
-            probability: rounded(num(h.probability), 4),
-            steering_fit: rounded(num(h.steering_fit), 4),
-            order_balance_db: balance(&h.order_balance_db),
-        })
-        .collect();
-    hypotheses.sort_by(|a, b| {
-        b.probability
-            .unwrap_or(0.0)
-            .total_cmp(&a.probability.unwrap_or(0.0))
-    });
-    let programme = &snap.programme;
-    let omni = &programme.omni;
+    let (channels, extra_channels) = channel_entries(&result.channels);
     let full = result.band(fieldglass_dsp::engine::Band::Full);
     ScanDocument {
         schema: SCHEMA,
@@ -408,41 +454,16 @@ pub fn document(result: &ScanResult) -> ScanDocument {
             order: result.layout.order,
             source: result.options.assumed_source.label(),
         },
-        detected: Detected {
-            ordering: detected.map(|f| ordering_label(f.ordering)),
-            normalization: detected.map(|f| normalization_label(f.normalization)),
-            order: result.layout.order,
-            effective_order: result.effective_order(),
-            confidence: detected.and_then(|_| rounded(num(check.confidence), 4)),
-            hypotheses,
-        },
+        detected: detected_entry(check, result.layout.order, result.effective_order()),
         analysis: Analysis {
             method: result.options.method.label(),
             band_edges_hz: [num(snap.band_edges_hz[0]), num(snap.band_edges_hz[1])],
             over_omni_tolerance_db: num(result.options.over_omni_tolerance_db),
         },
         order_balance_db: balance(result.order_balance_db()),
-        channels: result.channels.iter().filter_map(spatial).collect(),
-        extra_channels: result
-            .channels
-            .iter()
-            .filter(|c| c.is_extra())
-            .map(extra)
-            .collect(),
-        omni: Omni {
-            integrated_lufs: rounded(omni.integrated_lufs.and_then(num), 2),
-            max_momentary_lufs: rounded(omni.max_momentary_lufs.and_then(num), 2),
-            max_short_term_lufs: rounded(omni.max_short_term_lufs.and_then(num), 2),
-            true_peak_dbtp: rounded(level(omni.true_peak_dbtp), 2),
-            peak_dbfs: rounded(level(omni.sample_peak_dbfs), 2),
-            rms_dbfs: rounded(level(omni.rms_dbfs), 2),
-            conversion_gain_db: rounded(num(omni.conversion_gain_db), 3),
-            stored: StoredW {
-                true_peak_dbtp: rounded(level(omni.as_stored(omni.true_peak_dbtp)), 2),
-                peak_dbfs: rounded(level(omni.as_stored(omni.sample_peak_dbfs)), 2),
-                rms_dbfs: rounded(level(omni.as_stored(omni.rms_dbfs)), 2),
-            },
-        },
+        channels,
+        extra_channels,
+        omni: omni_entry(&snap.programme.omni),
         sources: full
             .map(|b| b.sources.iter().map(source).collect())
             .unwrap_or_default(),
