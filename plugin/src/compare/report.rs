@@ -89,23 +89,13 @@ fn difference(reference: &MapImage, candidate: &MapImage, range_db: f32) -> Opti
 /// A whole-programme map as the scan report draws it (one renderer: grid, direction words,
 /// colour scale and numbered source markers).
 fn map_png(map: &MapImage, sources: &[SourceReading], range_db: f64) -> Result<Vec<u8>, String> {
-    let marks: Vec<(f64, f64, f64)> = sources
-        .iter()
-        .map(|s| {
-            (
-                s.direction.azimuth_deg,
-                s.direction.elevation_deg,
-                s.level_db,
-            )
-        })
-        .collect();
     crate::scan::charts::map_png(
         &map.values_db,
         map.width,
         map.height,
         range_db,
         0.0,
-        &marks,
+        sources,
         None,
     )
 }

@@ -185,17 +185,6 @@ pub fn view_png(
     picture: Option<(&Picture, &PictureSettings)>,
 ) -> Result<Vec<u8>, String> {
     let map = &snapshot.map;
-    let sources: Vec<(f64, f64, f64)> = snapshot
-        .sources
-        .iter()
-        .map(|s| {
-            (
-                s.direction.azimuth_deg,
-                s.direction.elevation_deg,
-                s.level_db,
-            )
-        })
-        .collect();
     let sample = |az: f64, el: f64| picture.map_or([0; 4], |(p, _)| p.sample(az, el));
     let backdrop = picture.map(|(_, s)| Backdrop {
         sample: &sample,
@@ -208,7 +197,7 @@ pub fn view_png(
         map.height,
         f64::from(map_range_db(settings, Some(snapshot))),
         f64::from(settings.view_yaw_deg),
-        &sources,
+        &snapshot.sources,
         backdrop,
     )
 }

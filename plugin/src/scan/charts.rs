@@ -12,6 +12,7 @@ use super::font;
 use super::run::{TimelinePoint, expected_balance_db};
 use crate::look::{self, Rgb};
 use base64::Engine as _;
+use fieldglass_dsp::engine::SourceReading;
 use fieldglass_dsp::format::{AmbiFormat, Normalization};
 use fieldglass_dsp::render::{palette_rgb, scale_position};
 use fieldglass_dsp::wording;
@@ -575,8 +576,8 @@ pub struct MapLayers<'a> {
     pub range_db: f64,
     /// Azimuth shown in the centre, degrees (0: front in the centre).
     pub view_yaw_deg: f64,
-    /// Strongest first: (azimuth°, elevation°, level dB relative to the strongest).
-    pub sources: &'a [(f64, f64, f64)],
+    /// Strongest first, numbered from 1 in that order.
+    pub sources: &'a [SourceReading],
     pub backdrop: Option<Backdrop<'a>>,
 }
 
@@ -727,7 +728,8 @@ pub fn map_drawing(layers: &MapLayers, title: &str) -> Drawing {
             Anchor::Middle,
         );
     } else {
-        for (i, &(az, el, _)) in layers.sources.iter().enumerate() {
+        for (i, s) in layers.sources.iter().enumerate() {
+            let (az, el) = (s.direction.azimuth_deg, s.direction.elevation_deg);
             source_marker(&mut d, x_of(az), y_of(el), i + 1);
         }
     }
@@ -805,15 +807,14 @@ fn source_marker(d: &mut Drawing, x: f64, y: f64, number: usize) {
 ///
 /// `map_db` is indexed [row·width + col], row 0 at +90° and column 0 at azimuth +180° (as
 /// `MapImage`); the colour scale spans `range_db` below the map's maximum; `view_yaw_deg` is
-/// the azimuth shown in the centre; `sources` are (azimuth°, elevation°, level dB), strongest
-/// first, numbered from 1 in that order.
+/// the azimuth shown in the centre; `sources` are strongest first, numbered from 1 in that order.
 pub fn map_png(
     map_db: &[f32],
     width: usize,
     height: usize,
     range_db: f64,
     view_yaw_deg: f64,
-    sources: &[(f64, f64, f64)],
+    sources: &[SourceReading],
     backdrop: Option<Backdrop>,
 ) -> Result<Vec<u8>, String> {
     if width == 0 || height == 0 || map_db.len() < width * height {
@@ -1103,6 +1104,14 @@ pub fn order_balance_drawing(balance_db: &[f64], assumed: AmbiFormat) -> Drawing
 mod tests {
     use super::*;
 
+    /// The strongest source, at (azimuth, elevation) in degrees.
+    fn source_at(azimuth_deg: f64, elevation_deg: f64) -> SourceReading {
+        SourceReading {
+            direction: fieldglass_dsp::sphere::Direction::new(azimuth_deg, elevation_deg),
+            level_db: 0.0,
+        }
+    }
+
     /// A 4×2 map, strongest at the column of azimuth +45° (upper row).
     fn small_map() -> Vec<f32> {
         vec![-20.0, 0.0, -20.0, -20.0, -20.0, -20.0, -20.0, -20.0]
@@ -1111,7 +1120,7 @@ mod tests {
     #[test]
     fn map_png_is_a_png_with_the_map_and_rejects_short_data() {
         let map = small_map();
-        let png = map_png(&map, 4, 2, 30.0, 0.0, &[(45.0, 45.0, 0.0)], None).unwrap();
+        let png = map_png(&map, 4, 2, 30.0, 0.0, &[source_at(45.0, 45.0)], None).unwrap();
         assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
         assert!(map_png(&map, 5, 2, 30.0, 0.0, &[], None).is_err());
     }
@@ -1226,7 +1235,7 @@ mod tests {
             height: 2,
             range_db: 30.0,
             view_yaw_deg: 0.0,
-            sources: &[(45.0, 45.0, 0.0)],
+            sources: &[source_at(45.0, 45.0)],
             backdrop: None,
         };
         let svg = map_drawing(&layers, "full band").to_svg().unwrap();

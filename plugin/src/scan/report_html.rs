@@ -13,6 +13,7 @@ use super::summary::format_verdict;
 use crate::look;
 use crate::picture::Picture;
 use fieldglass_dsp::beam::default_map_range_db;
+use fieldglass_dsp::engine::SourceReading;
 use fieldglass_dsp::engine::{Band, MapMethod, Severity};
 use fieldglass_dsp::format::Normalization;
 use fieldglass_dsp::wording;
@@ -143,7 +144,7 @@ fn figure(dir: &Path, file: &str, drawing: &Drawing) -> Result<String, CliError>
 /// The map layers of one band's whole-programme map.
 fn band_layers<'a>(
     band: &'a BandResult,
-    sources: &'a [(f64, f64, f64)],
+    sources: &'a [SourceReading],
     range_db: f64,
     backdrop: Option<Backdrop<'a>>,
 ) -> MapLayers<'a> {
@@ -413,24 +414,16 @@ fn build_html(
     for band in &result.bands {
         let title = band_title(band.band, band.range_hz);
         let _ = writeln!(h, "<h3>{title}</h3>");
-        let sources: Vec<(f64, f64, f64)> = band
-            .sources
-            .iter()
-            .map(|s| {
-                (
-                    s.direction.azimuth_deg,
-                    s.direction.elevation_deg,
-                    s.level_db,
-                )
-            })
-            .collect();
         let sample = |az: f64, el: f64| picture.map_or([0; 4], |p| p.picture.sample(az, el));
         let backdrop = picture.map(|p| Backdrop {
             sample: &sample,
             yaw_deg: p.yaw_deg,
             opacity: p.opacity,
         });
-        let drawing = map_drawing(&band_layers(band, &sources, range_db, backdrop), &title);
+        let drawing = map_drawing(
+            &band_layers(band, &band.sources, range_db, backdrop),
+            &title,
+        );
         let img = figure(dir, &map_file(band.band), &drawing)?;
         let _ = writeln!(
             h,
