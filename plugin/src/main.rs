@@ -489,24 +489,32 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
         let shown = report.as_ref().map(|p| p.display().to_string());
         print!("{}", summary::summary(&result, shown.as_deref()));
     }
-    if let Some(threshold) = fail_on_severity(args.fail_on) {
-        let hits: Vec<&str> = result
-            .findings
-            .iter()
-            .filter(|f| f.severity >= threshold)
-            .map(|f| f.code.label())
-            .collect();
-        if !hits.is_empty() {
-            eprintln!(
-                "fieldglass: {} finding(s) at or above '{}': {}",
-                hits.len(),
-                threshold.label(),
-                hits.join(", ")
-            );
-            return Ok(ExitCode::from(EXIT_FAIL_ON));
-        }
+    let findings = result.findings.iter().map(|f| (f.severity, f.code.label()));
+    Ok(fail_on_exit(fail_on_severity(args.fail_on), findings))
+}
+
+/// Exit 3, naming the findings, when any is at least as severe as `threshold`; else 0.
+fn fail_on_exit(
+    threshold: Option<Severity>,
+    findings: impl Iterator<Item = (Severity, &'static str)>,
+) -> ExitCode {
+    let Some(threshold) = threshold else {
+        return ExitCode::SUCCESS;
+    };
+    let hits: Vec<&str> = findings
+        .filter(|(severity, _)| *severity >= threshold)
+        .map(|(_, code)| code)
+        .collect();
+    if hits.is_empty() {
+        return ExitCode::SUCCESS;
     }
-    Ok(ExitCode::SUCCESS)
+    eprintln!(
+        "fieldglass: {} finding(s) at or above '{}': {}",
+        hits.len(),
+        threshold.label(),
+        hits.join(", ")
+    );
+    ExitCode::from(EXIT_FAIL_ON)
 }
 
 /// Writes `text` to the file `target`, or to stdout for "-".
@@ -593,28 +601,8 @@ fn run_compare(args: CompareArgs) -> Result<ExitCode, CliError> {
         let shown = report.as_ref().map(|p| p.display().to_string());
         print!("{}", compare::summary::summary(&result, shown.as_deref()));
     }
-    if let Some(fail_on) = args.fail_on {
-        let threshold = match fail_on {
-            FailOn::Warning => Severity::Warning,
-            FailOn::Error => Severity::Error,
-        };
-        let hits: Vec<&str> = result
-            .findings
-            .iter()
-            .filter(|f| f.severity >= threshold)
-            .map(|f| f.code.label())
-            .collect();
-        if !hits.is_empty() {
-            eprintln!(
-                "fieldglass: {} finding(s) at or above '{}': {}",
-                hits.len(),
-                threshold.label(),
-                hits.join(", ")
-            );
-            return Ok(ExitCode::from(EXIT_FAIL_ON));
-        }
-    }
-    Ok(ExitCode::SUCCESS)
+    let findings = result.findings.iter().map(|f| (f.severity, f.code.label()));
+    Ok(fail_on_exit(fail_on_severity(args.fail_on), findings))
 }
 
 fn run_demo(args: DemoArgs) -> Result<ExitCode, CliError> {
