@@ -41,6 +41,10 @@ pub struct AnalysisSettings {
     /// held. Meters, loudness, the format check and findings keep the assumed format, and
     /// the assumption itself does not change. `None` (the default) = the assumed format.
     pub map_format_override: Option<AmbiFormat>,
+    /// The format the stream's own metadata declares (a file's ADM): the format check is
+    /// compared with it too (`metadata-mismatch`). `None` where nothing is declared (a live
+    /// stream).
+    pub declared_format: Option<AmbiFormat>,
 }
 
 impl Default for AnalysisSettings {
@@ -61,6 +65,7 @@ impl Default for AnalysisSettings {
             source_separation_deg: 20.0,
             source_floor_db: 15.0,
             map_format_override: None,
+            declared_format: None,
         }
     }
 }

@@ -235,20 +235,39 @@ pub fn collect_findings(inputs: &FindingInputs, settings: &AnalysisSettings) -> 
     if let Some(detected) = check.detected
         && !a_format
         && check.ready
-        && detected != inputs.assumed_format
         && check.confidence >= MISMATCH_CONFIDENCE
     {
-        findings.push(Finding {
-            severity: Severity::Error,
-            code: FindingCode::FormatMismatch,
-            message: format!(
-                "the signal looks like {} ({}) but is read as {}",
-                detected.human_name(),
-                wording::likelihood(check.confidence),
-                inputs.assumed_format.human_name()
-            ),
-            channels: Vec::new(),
-        });
+        let declared = settings.declared_format;
+        if let Some(declared) = declared
+            && detected != declared
+        {
+            findings.push(Finding {
+                severity: Severity::Error,
+                code: FindingCode::MetadataMismatch,
+                message: format!(
+                    "the file's metadata declares {} but the signal looks like {} ({})",
+                    declared.human_name(),
+                    detected.human_name(),
+                    wording::likelihood(check.confidence)
+                ),
+                channels: Vec::new(),
+            });
+        }
+        // Reading the stream as its metadata declares: the disagreement is reported once,
+        // as the metadata's.
+        if detected != inputs.assumed_format && declared != Some(inputs.assumed_format) {
+            findings.push(Finding {
+                severity: Severity::Error,
+                code: FindingCode::FormatMismatch,
+                message: format!(
+                    "the signal looks like {} ({}) but is read as {}",
+                    detected.human_name(),
+                    wording::likelihood(check.confidence),
+                    inputs.assumed_format.human_name()
+                ),
+                channels: Vec::new(),
+            });
+        }
     }
     let dc = pick(&|s| s.dc_offset.abs() > DC_OFFSET_LIMIT);
     if !dc.is_empty() {
@@ -351,5 +370,66 @@ mod tests {
             "{}",
             mismatch.message
         );
+    }
+
+    /// The codes raised when `detected` is found (97 % likely) in a stream read as `assumed`
+    /// whose metadata declares `declared`.
+    fn mismatch_codes(
+        detected: AmbiFormat,
+        assumed: AmbiFormat,
+        declared: Option<AmbiFormat>,
+    ) -> Vec<FindingCode> {
+        let check = FormatCheck {
+            ready: true,
+            detected: Some(detected),
+            confidence: 0.97,
+            effective_order: 1,
+            ..FormatCheck::default()
+        };
+        let channels: Vec<ChannelFacts> = (0..4)
+            .map(|i| ChannelFacts {
+                input_index: i,
+                acn: Some(i),
+                ..ChannelFacts::default()
+            })
+            .collect();
+        let settings = AnalysisSettings {
+            declared_format: declared,
+            ..AnalysisSettings::default()
+        };
+        collect_findings(
+            &FindingInputs {
+                channels: &channels,
+                format_check: &check,
+                order: 1,
+                assumed_format: assumed,
+                whole_programme: true,
+            },
+            &settings,
+        )
+        .iter()
+        .map(|f| f.code)
+        .collect()
+    }
+
+    #[test]
+    fn a_contradicted_declaration_is_reported_once_as_the_metadata_s() {
+        use FindingCode::{FormatMismatch, MetadataMismatch};
+        let (sn3d, n3d, fuma) = (AmbiFormat::ACN_SN3D, AmbiFormat::ACN_N3D, AmbiFormat::FUMA);
+        // Read as declared: one finding, the metadata's.
+        assert_eq!(mismatch_codes(sn3d, n3d, Some(n3d)), vec![MetadataMismatch]);
+        // The user's assumption is right, the declaration wrong.
+        assert_eq!(
+            mismatch_codes(sn3d, sn3d, Some(n3d)),
+            vec![MetadataMismatch]
+        );
+        // Both wrong: two findings.
+        assert_eq!(
+            mismatch_codes(fuma, sn3d, Some(n3d)),
+            vec![MetadataMismatch, FormatMismatch]
+        );
+        // Nothing declared: the ordinary rule.
+        assert_eq!(mismatch_codes(sn3d, n3d, None), vec![FormatMismatch]);
+        assert!(mismatch_codes(n3d, n3d, Some(n3d)).is_empty());
     }
 }

@@ -9,9 +9,7 @@ use super::progress::Progress;
 use crate::adm::{self, AdmDeclaration};
 use crate::opus::{self, OpusReader};
 use crate::wav::{Container, SampleFormat, WavReader};
-use fieldglass_dsp::engine::findings::{
-    ChannelFacts, FindingInputs, MISMATCH_CONFIDENCE, collect_findings,
-};
+use fieldglass_dsp::engine::findings::{ChannelFacts, FindingInputs, collect_findings};
 use fieldglass_dsp::engine::{
     AnalysisSettings, Analyzer, Band, ChannelLayout, Finding, MapImage, MapMethod, MapScale,
     Snapshot, SourceReading, StreamSetup,
@@ -529,6 +527,7 @@ pub fn scan_observed(
         over_omni_tolerance_db: options.over_omni_tolerance_db,
         time_constant_ms: 1000.0 / TIMELINE_RATE_HZ,
         max_sources: 1,
+        declared_format: comparable_declaration(&info, &options),
         ..AnalysisSettings::default()
     };
     let setup = StreamSetup {
@@ -599,7 +598,7 @@ pub fn scan_observed(
         to_file_channels(source_channel, &mut channels);
         findings = file_channel_findings(source_channel, &channels, &finding_context);
     }
-    metadata_findings(&info, &options, &snapshot, &mut findings);
+    findings.extend(unreadable_metadata(&info, &options));
     for warning in &info.warnings {
         findings.push(Finding {
             severity: Severity::Warning,
@@ -753,57 +752,33 @@ fn file_channel_findings(
     )
 }
 
-/// What the file's ADM metadata adds to the findings: a declaration the signal contradicts
-/// (`metadata-mismatch`, which replaces the engine's `format-mismatch` when the declaration was
-/// the assumption: same cause), or metadata that cannot be used (`metadata-unreadable`).
-fn metadata_findings(
-    info: &InputInfo,
-    options: &ScanOptions,
-    snapshot: &Snapshot,
-    findings: &mut Vec<Finding>,
-) {
-    match &info.metadata {
-        None => {}
-        Some(Err(why)) => findings.push(Finding {
-            severity: Severity::Warning,
-            code: FindingCode::MetadataUnreadable,
-            message: format!(
-                "the file's ADM metadata cannot be used ({why}); the format was taken from {}",
-                match options.assumed_source {
-                    AssumedSource::Option => "--assume",
-                    _ => "the default, and the signal was checked against it",
-                }
-            ),
-            channels: Vec::new(),
-        }),
-        Some(Ok(declared)) => {
-            let from_metadata = options.assumed_source == AssumedSource::Metadata;
-            if from_metadata {
-                findings.retain(|f| f.code != FindingCode::FormatMismatch);
+/// The format a file's ADM metadata declares, when the format check can be compared with it:
+/// a declaration whose tracks had to be routed was analysed in its own order only when it was
+/// the assumption; otherwise the check saw the file's channels as they are.
+fn comparable_declaration(info: &InputInfo, options: &ScanOptions) -> Option<AmbiFormat> {
+    let Some(Ok(declared)) = &info.metadata else {
+        return None;
+    };
+    let from_metadata = options.assumed_source == AssumedSource::Metadata;
+    (from_metadata || info.route.is_none() && declared.route().is_none()).then(|| declared.format())
+}
+
+/// Metadata a file carries that cannot be used (`metadata-unreadable`); the engine's rules
+/// compare a usable declaration with the signal (`metadata-mismatch`).
+fn unreadable_metadata(info: &InputInfo, options: &ScanOptions) -> Option<Finding> {
+    let Some(Err(why)) = &info.metadata else {
+        return None;
+    };
+    Some(Finding {
+        severity: Severity::Warning,
+        code: FindingCode::MetadataUnreadable,
+        message: format!(
+            "the file's ADM metadata cannot be used ({why}); the format was taken from {}",
+            match options.assumed_source {
+                AssumedSource::Option => "--assume",
+                _ => "the default, and the signal was checked against it",
             }
-            // A routed declaration was analysed in its own order only when it was the
-            // assumption; otherwise the check saw the file's channels as they are.
-            let comparable = from_metadata || info.route.is_none() && declared.route().is_none();
-            let check = &snapshot.format_check;
-            if let Some(detected) = check.detected
-                && comparable
-                && check.ready
-                && !check.a_format_suspected
-                && detected != declared.format()
-                && check.confidence >= MISMATCH_CONFIDENCE
-            {
-                findings.push(Finding {
-                    severity: Severity::Error,
-                    code: FindingCode::MetadataMismatch,
-                    message: format!(
-                        "the file's ADM metadata declares {} but the signal looks like {} ({})",
-                        declared.format().human_name(),
-                        detected.human_name(),
-                        wording::likelihood(check.confidence)
-                    ),
-                    channels: Vec::new(),
-                });
-            }
-        }
-    }
+        ),
+        channels: Vec::new(),
+    })
 }
