@@ -112,6 +112,7 @@ mod tests {
     fn words_and_numbers_read_one_way() {
         assert_eq!(likelihood(0.9704), "97 % likely");
         assert_eq!(direction(-35.2, -0.3), "az -35°, el 0°");
+        assert_eq!(direction(179.6, 45.0), "az 180°, el 45°");
         assert_eq!(azimuth_word(-90.0), Some(RIGHT));
         assert_eq!(azimuth_word(180.0), Some(BACK));
         assert_eq!(azimuth_word(-180.0), Some(BACK));

@@ -88,7 +88,7 @@ pub fn readout_text(
     value_db: Option<f32>,
     unit: &str,
 ) -> String {
-    let direction = theme::format_direction(azimuth_deg, elevation_deg);
+    let direction = wording::direction(azimuth_deg, elevation_deg);
     match value_db {
         Some(v) if v.is_finite() => format!(
             "Pointer: {direction}, {} {unit}",
@@ -447,7 +447,7 @@ pub fn draw(
             painter.text(
                 p + offset,
                 anchor,
-                theme::format_direction(d.azimuth_deg, d.elevation_deg),
+                wording::direction(d.azimuth_deg, d.elevation_deg),
                 theme::small_font(),
                 theme::SOURCE_MARK,
             );
@@ -510,7 +510,7 @@ pub fn draw(
             let d = source.direction;
             ui.label(format!(
                 "{} ({} dB)",
-                theme::format_direction(d.azimuth_deg, d.elevation_deg),
+                wording::direction(d.azimuth_deg, d.elevation_deg),
                 theme::format_db(source.level_db)
             ));
         }
@@ -577,7 +577,7 @@ fn draw_labels(painter: &egui::Painter, rect: Rect, to_screen: &dyn Fn(f64, f64)
         painter.text(
             pos2(x + 2.0, rect.bottom() - 2.0),
             egui::Align2::LEFT_BOTTOM,
-            format!("{}°", theme::format_deg(azimuth_deg)),
+            format!("{}°", wording::degrees(azimuth_deg)),
             font.clone(),
             theme::TEXT_DIM,
         );

@@ -73,24 +73,12 @@ pub fn format_db(value_db: f64) -> String {
     }
 }
 
-/// Whole degrees without a "-0" (`wording::degrees`).
-pub fn format_deg(value_deg: f64) -> String {
-    fieldglass_dsp::wording::degrees(value_deg)
-}
-
-/// "az -35°, el 0°": the direction text used by readouts and markers (`wording::direction`).
-pub fn format_direction(azimuth_deg: f64, elevation_deg: f64) -> String {
-    fieldglass_dsp::wording::direction(azimuth_deg, elevation_deg)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
 
     #[test]
-    fn direction_text_has_no_negative_zero() {
-        assert_eq!(format_direction(-35.2, -0.3), "az -35°, el 0°");
-        assert_eq!(format_direction(179.6, 45.0), "az 180°, el 45°");
+    fn levels_have_a_floor_and_no_negative_zero() {
         assert_eq!(format_db(-200.0), "-inf");
         assert_eq!(format_db(-0.04), "0.0");
     }

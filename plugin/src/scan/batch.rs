@@ -201,9 +201,8 @@ fn scan_one(
 ) -> Outcome {
     let shown = path.display().to_string();
     let input = ScanInput::File(path.to_path_buf());
-    let result = scan_observed(&input, options.scan, |info| match bars {
-        Some(bars) => Progress::in_batch(Some(bars), &shown, info.frames),
-        None => Progress::none(),
+    let result = scan_observed(&input, options.scan, |info| {
+        Progress::in_batch(bars, &shown, info.frames)
     });
     let result = match result {
         Ok(result) => result,

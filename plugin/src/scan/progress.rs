@@ -42,11 +42,6 @@ impl Progress {
         Self { bar }
     }
 
-    /// No bar.
-    pub fn none() -> Self {
-        Self { bar: None }
-    }
-
     pub fn advance(&mut self, frames: u64) {
         if let Some(bar) = &self.bar {
             bar.inc(frames);
