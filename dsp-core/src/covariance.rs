@@ -81,23 +81,62 @@ impl BandLayout {
 pub struct BandCovariance {
     channels: usize,
     framing: StftFraming,
-    layout: BandLayout,
-    fft: Arc<dyn RealToComplex<f32>>,
-    window: Vec<f32>,
-    /// Per-bin amplitude scale sqrt(c_k / (N Σw²)), c_k = 1 at DC and Nyquist, 2 elsewhere.
-    bin_scale: Vec<f32>,
+    /// What every frame's analysis reads: the plan, window, scales and band layout.
+    frame: FrameAnalysis,
     /// Input history, planar [channel][frame_len].
     history: Vec<f32>,
     filled: usize,
-    fft_in: Vec<f32>,
-    fft_out: Vec<Complex<f32>>,
-    fft_scratch: Vec<Complex<f32>>,
-    /// Scaled spectra per channel, row-major [channel][2·bins]: real parts of all bins, then
-    /// imaginary parts, so that Re(X Xᴴ) over a band is one matrix product.
-    spectra: Vec<f32>,
-    product: Vec<f32>,
+    scratch: FrameScratch,
     /// Frame covariance per band, [band][i·M + j], band 0 = full (sum of the splits).
     frame_cov: Vec<Vec<f64>>,
+    /// Working memory of [`push_parallel`](Self::push_parallel), made on its first use.
+    batch: Option<FrameBatch>,
+}
+
+/// The fixed parts of one frame's analysis (shared, read only, by every worker).
+struct FrameAnalysis {
+    layout: BandLayout,
+    fft: Arc<dyn RealToComplex<f32>>,
+    window: Vec<f32>,
+    /// Bins per spectrum (N/2 + 1).
+    bins: usize,
+    /// Power scale of a bin inside the spectrum, 2 / (N Σw²) (one-sided, Parseval); DC and
+    /// Nyquist count once, so their amplitudes are first scaled by 1/√2.
+    power_scale: f64,
+}
+
+/// The working memory of one frame's analysis.
+struct FrameScratch {
+    fft_in: Vec<f32>,
+    fft_scratch: Vec<Complex<f32>>,
+    /// Spectra per channel, row-major [channel][bins], as the FFT writes them: read as f32,
+    /// a row is re₀ im₀ re₁ im₁ …, so Re(X Xᴴ) over a band is one product of rows.
+    spectra: Vec<Complex<f32>>,
+    product: Vec<f32>,
+}
+
+impl FrameScratch {
+    fn new(fft: &dyn RealToComplex<f32>, channels: usize, bins: usize) -> Self {
+        Self {
+            fft_in: fft.make_input_vec(),
+            fft_scratch: fft.make_scratch_vec(),
+            spectra: vec![Complex::default(); channels * bins],
+            product: vec![0.0; channels * channels],
+        }
+    }
+}
+
+/// Working memory of [`BandCovariance::push_parallel`]: the history and the block end to end
+/// per channel, one covariance set per frame of the block, one scratch per worker.
+struct FrameBatch {
+    /// Planar [channel][stride]: `filled` samples of history, then the block.
+    stream: Vec<f32>,
+    stride: usize,
+    /// [frame][band][i·M + j].
+    frames: Vec<Vec<Vec<f64>>>,
+    /// One per thread of the pool (indexed by the worker's index); a lock that is never
+    /// contended, because a worker only takes its own.
+    scratch: Vec<std::sync::Mutex<FrameScratch>>,
 }
 
 impl BandCovariance {
@@ -110,28 +149,22 @@ impl BandCovariance {
             .collect();
         let window_energy: f64 = window.iter().map(|&w| (w as f64) * (w as f64)).sum();
         let bins = framing.bins();
-        let bin_scale = (0..bins)
-            .map(|k| {
-                let c = if k == 0 || k == bins - 1 { 1.0 } else { 2.0 };
-                (c / (n as f64 * window_energy)).sqrt() as f32
-            })
-            .collect();
-        let fft_scratch = fft.make_scratch_vec();
+        let power_scale = 2.0 / (n as f64 * window_energy);
         Self {
             channels,
             framing,
-            layout: BandLayout::new(framing, sample_rate_hz, edges_hz),
-            fft_in: fft.make_input_vec(),
-            fft_out: fft.make_output_vec(),
-            fft_scratch,
-            fft,
-            window,
-            bin_scale,
+            scratch: FrameScratch::new(&*fft, channels, bins),
+            frame: FrameAnalysis {
+                layout: BandLayout::new(framing, sample_rate_hz, edges_hz),
+                fft,
+                window,
+                bins,
+                power_scale,
+            },
             history: vec![0.0; channels * n],
             filled: 0,
-            spectra: vec![0.0; channels * 2 * bins],
-            product: vec![0.0; channels * channels],
             frame_cov: vec![vec![0.0; channels * channels]; BAND_COUNT],
+            batch: None,
         }
     }
 
@@ -140,7 +173,7 @@ impl BandCovariance {
     }
 
     pub fn layout(&self) -> &BandLayout {
-        &self.layout
+        &self.frame.layout
     }
 
     pub fn channels(&self) -> usize {
@@ -149,7 +182,7 @@ impl BandCovariance {
 
     /// Moves the band edges; takes effect from the next frame.
     pub fn set_band_edges(&mut self, sample_rate_hz: f64, edges_hz: [f64; 2]) {
-        self.layout = BandLayout::new(self.framing, sample_rate_hz, edges_hz);
+        self.frame.layout = BandLayout::new(self.framing, sample_rate_hz, edges_hz);
     }
 
     /// Clears the input history.
@@ -181,7 +214,13 @@ impl BandCovariance {
             self.filled += take;
             offset += take;
             if self.filled == n {
-                self.analyse_frame();
+                let history = &self.history;
+                self.frame.analyse(
+                    |c| &history[c * n..(c + 1) * n],
+                    self.channels,
+                    &mut self.scratch,
+                    &mut self.frame_cov,
+                );
                 on_frame(&self.frame_cov);
                 let hop = self.framing.hop;
                 for c in 0..self.channels {
@@ -192,51 +231,121 @@ impl BandCovariance {
         }
     }
 
-    fn analyse_frame(&mut self) {
-        let n = self.framing.frame_len;
+    /// [`push`](Self::push) with the frames of the block analysed at once on the threads of
+    /// the rayon pool; `on_frame` is then called for each, in order, on the calling thread.
+    /// Every frame is the same pure function of its samples as in `push`, so the covariances
+    /// are the same bits. Allocates on the first call and when a block is longer than any
+    /// before (for a scanner, not an audio thread).
+    pub fn push_parallel(&mut self, input: &[&[f32]], mut on_frame: impl FnMut(&[Vec<f64>])) {
+        use rayon::prelude::*;
+        let frames = input.first().map_or(0, |c| c.len());
+        let (n, hop, m) = (self.framing.frame_len, self.framing.hop, self.channels);
+        let stride = self.filled + frames;
+        if stride < n {
+            // No frame completes: the plain path only copies.
+            return self.push(input, on_frame);
+        }
+        let count = (stride - n) / hop + 1;
+        let threads = rayon::current_num_threads().max(1);
         let bins = self.framing.bins();
-        let m = self.channels;
+        let batch = self.batch.get_or_insert_with(|| FrameBatch {
+            stream: Vec::new(),
+            stride: 0,
+            frames: Vec::new(),
+            scratch: Vec::new(),
+        });
+        batch.stride = stride;
+        batch.stream.resize(m * stride, 0.0);
+        while batch.frames.len() < count {
+            batch.frames.push(vec![vec![0.0; m * m]; BAND_COUNT]);
+        }
+        while batch.scratch.len() < threads {
+            let scratch = FrameScratch::new(&*self.frame.fft, m, bins);
+            batch.scratch.push(std::sync::Mutex::new(scratch));
+        }
         for c in 0..m {
-            let src = &self.history[c * n..(c + 1) * n];
-            for ((d, &s), &w) in self.fft_in.iter_mut().zip(src).zip(&self.window) {
-                *d = s * w;
-            }
-            // Lengths come from the plan itself, so this cannot fail.
-            let _ = self.fft.process_with_scratch(
-                &mut self.fft_in,
-                &mut self.fft_out,
-                &mut self.fft_scratch,
-            );
-            let row = &mut self.spectra[c * 2 * bins..(c + 1) * 2 * bins];
-            let (re, im) = row.split_at_mut(bins);
-            for k in 0..bins {
-                let s = self.bin_scale[k];
-                re[k] = self.fft_out[k].re * s;
-                im[k] = self.fft_out[k].im * s;
+            let row = &mut batch.stream[c * stride..(c + 1) * stride];
+            let (kept, fresh) = row.split_at_mut(self.filled);
+            kept.copy_from_slice(&self.history[c * n..c * n + self.filled]);
+            match input.get(c) {
+                // Non-finite samples would poison every later estimate.
+                Some(src) => {
+                    for (d, &s) in fresh.iter_mut().zip(src.iter()) {
+                        *d = if s.is_finite() { s } else { 0.0 };
+                    }
+                }
+                None => fresh.fill(0.0),
             }
         }
-        self.frame_cov[0].fill(0.0);
+        let (frame, stream, scratch) = (&self.frame, &batch.stream, &batch.scratch);
+        batch.frames[..count]
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(f, out)| {
+                let slot = rayon::current_thread_index().unwrap_or(0) % scratch.len();
+                let mut scratch = scratch[slot].lock().unwrap_or_else(|e| e.into_inner());
+                let start = f * hop;
+                let samples = |c: usize| &stream[c * stride + start..c * stride + start + n];
+                frame.analyse(samples, m, &mut scratch, out);
+            });
+        for out in &batch.frames[..count] {
+            on_frame(out);
+        }
+        // What the next frame needs: everything from the start of the frame after the last.
+        let next = count * hop;
+        self.filled = stride - next;
+        for c in 0..m {
+            let tail = &batch.stream[c * stride + next..(c + 1) * stride];
+            self.history[c * n..c * n + self.filled].copy_from_slice(tail);
+        }
+    }
+}
+
+impl FrameAnalysis {
+    /// The band covariances of one frame: `samples(c)` is channel c's `frame_len` samples.
+    fn analyse<'a>(
+        &self,
+        samples: impl Fn(usize) -> &'a [f32],
+        m: usize,
+        scratch: &mut FrameScratch,
+        frame_cov: &mut [Vec<f64>],
+    ) {
+        let bins = self.bins;
+        for c in 0..m {
+            let src = samples(c);
+            for ((d, &s), &w) in scratch.fft_in.iter_mut().zip(src).zip(&self.window) {
+                *d = s * w;
+            }
+            let spectrum = &mut scratch.spectra[c * bins..(c + 1) * bins];
+            // Lengths come from the plan itself, so this cannot fail.
+            let _ = self.fft.process_with_scratch(
+                &mut scratch.fft_in,
+                spectrum,
+                &mut scratch.fft_scratch,
+            );
+            // DC and Nyquist appear once in a one-sided spectrum, the other bins twice.
+            spectrum[0] *= std::f32::consts::FRAC_1_SQRT_2;
+            spectrum[bins - 1] *= std::f32::consts::FRAC_1_SQRT_2;
+        }
+        let flat = complex_as_f32(&scratch.spectra);
+        frame_cov[0].fill(0.0);
         for band in 0..3 {
             let range = self.layout.split_range(band);
-            let (full_cov, split_covs) = self.frame_cov.split_at_mut(1);
+            let (full_cov, split_covs) = frame_cov.split_at_mut(1);
             let cov = &mut split_covs[band];
             if range.is_empty() {
                 cov.fill(0.0);
                 continue;
             }
-            self.product.fill(0.0);
-            for part in 0..2 {
-                let start = part * bins + range.start;
-                gram_accumulate(
-                    &self.spectra[start..],
-                    m,
-                    range.len(),
-                    2 * bins,
-                    &mut self.product,
-                );
-            }
-            for (dst, &p) in cov.iter_mut().zip(&self.product) {
-                *dst = p as f64;
+            gram(
+                &flat[2 * range.start..],
+                m,
+                2 * range.len(),
+                2 * bins,
+                &mut scratch.product,
+            );
+            for (dst, &p) in cov.iter_mut().zip(&scratch.product) {
+                *dst = f64::from(p) * self.power_scale;
             }
             for (full, &p) in full_cov[0].iter_mut().zip(cov.iter()) {
                 *full += p;
@@ -245,17 +354,64 @@ impl BandCovariance {
     }
 }
 
-/// product += A·Aᵀ where A is `rows × cols`, row stride `row_stride`, starting at `a[0]`.
-fn gram_accumulate(a: &[f32], rows: usize, cols: usize, row_stride: usize, product: &mut [f32]) {
-    assert!(rows == 0 || a.len() >= (rows - 1) * row_stride + cols);
-    assert!(product.len() >= rows * rows);
+/// A complex slice read as its re, im, re, im … parts.
+fn complex_as_f32(values: &[Complex<f32>]) -> &[f32] {
+    // SAFETY: `Complex<f32>` is `#[repr(C)]` with fields `re`, `im` (num-complex documents
+    // this layout), so n values are 2n consecutive f32 with the same alignment.
+    unsafe { std::slice::from_raw_parts(values.as_ptr().cast::<f32>(), 2 * values.len()) }
+}
+
+/// product = A·Aᵀ where A is `rows × cols`, row stride `row_stride`, starting at `a[0]`.
+///
+/// The product is symmetric: from 16 rows on, only the blocks on and above the diagonal are
+/// multiplied (the top half of the rows against all rows, the bottom half against itself: ¾ of
+/// the work) and the rest is mirrored, so the result is exactly symmetric.
+fn gram(a: &[f32], rows: usize, cols: usize, row_stride: usize, product: &mut [f32]) {
+    let half = if rows >= 16 { rows / 2 } else { rows };
+    // Top rows [0, half) against all rows.
+    sgemm_rows(a, half, rows, cols, row_stride, product, rows);
+    if half < rows {
+        // Bottom rows [half, rows) against themselves.
+        let (a_low, c_low) = (&a[half * row_stride..], &mut product[half * rows + half..]);
+        sgemm_rows(
+            a_low,
+            rows - half,
+            rows - half,
+            cols,
+            row_stride,
+            c_low,
+            rows,
+        );
+        for i in half..rows {
+            for j in 0..half {
+                product[i * rows + j] = product[j * rows + i];
+            }
+        }
+    }
+}
+
+/// c[i·c_stride + j] = Σ_k a[i·row_stride + k]·a[j·row_stride + k] for i < `left`, j < `right`
+/// (`left` ≤ `right`: the left rows are the first of the right ones).
+fn sgemm_rows(
+    a: &[f32],
+    left: usize,
+    right: usize,
+    cols: usize,
+    row_stride: usize,
+    c: &mut [f32],
+    c_stride: usize,
+) {
+    assert!(left <= right && right <= c_stride);
+    assert!(right == 0 || a.len() >= (right - 1) * row_stride + cols);
+    assert!(left == 0 || c.len() >= (left - 1) * c_stride + right);
     // SAFETY: the asserts above bound every index matrixmultiply touches: A is read at
-    // i·row_stride + k for i < rows, k < cols; C is written at i·rows + j for i, j < rows.
+    // i·row_stride + k for i < right, k < cols; C is written at i·c_stride + j for i < left,
+    // j < right. With beta = 0, C is written without being read.
     unsafe {
         matrixmultiply::sgemm(
-            rows,
+            left,
             cols,
-            rows,
+            right,
             1.0,
             a.as_ptr(),
             row_stride as isize,
@@ -263,9 +419,9 @@ fn gram_accumulate(a: &[f32], rows: usize, cols: usize, row_stride: usize, produ
             a.as_ptr(),
             1,
             row_stride as isize,
-            1.0,
-            product.as_mut_ptr(),
-            rows as isize,
+            0.0,
+            c.as_mut_ptr(),
+            c_stride as isize,
             1,
         );
     }
@@ -282,6 +438,92 @@ mod tests {
         assert_eq!(StftFraming::for_sample_rate(96_000.0).frame_len, 2048);
         assert_eq!(StftFraming::for_sample_rate(22_050.0).frame_len, 512);
         assert_eq!(StftFraming::for_sample_rate(384_000.0).frame_len, 8192);
+    }
+
+    #[test]
+    fn gram_matches_plain_dot_products_and_is_symmetric() {
+        for rows in [1, 4, 15, 16, 17, 36, 64] {
+            let (cols, stride) = (37, 41);
+            let a: Vec<f32> = (0..rows * stride)
+                .map(|i| ((i * 7919) % 1009) as f32 / 1009.0 - 0.5)
+                .collect();
+            let mut product = vec![f32::NAN; rows * rows];
+            gram(&a, rows, cols, stride, &mut product);
+            for i in 0..rows {
+                for j in 0..rows {
+                    let plain: f64 = (0..cols)
+                        .map(|k| f64::from(a[i * stride + k]) * f64::from(a[j * stride + k]))
+                        .sum();
+                    let got = product[i * rows + j];
+                    assert!(
+                        (f64::from(got) - plain).abs() < 1e-5,
+                        "rows {rows} ({i},{j})"
+                    );
+                    assert_eq!(got.to_bits(), product[j * rows + i].to_bits());
+                }
+            }
+        }
+    }
+
+    /// Frames analysed at once on the pool are the very frames of the one-by-one path, in the
+    /// same order, whatever the block sizes, with non-finite samples, and when the two paths
+    /// take turns on one stream.
+    #[test]
+    fn frames_on_the_pool_match_frames_one_by_one_bit_for_bit() {
+        let fs = 48_000.0;
+        let channels = 9;
+        let len = 20_000;
+        let mut state = 0x853C_49E6_748F_EA9Bu64;
+        let signal: Vec<Vec<f32>> = (0..channels)
+            .map(|c| {
+                (0..len)
+                    .map(|i| {
+                        state = state
+                            .wrapping_mul(6_364_136_223_846_793_005)
+                            .wrapping_add(1_442_695_040_888_963_407);
+                        let noise = (state >> 40) as f32 / (1u64 << 24) as f32 - 0.5;
+                        if c == 2 && i == 7_000 {
+                            f32::NAN
+                        } else {
+                            noise
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        let run = |blocks: &[usize], parallel: &dyn Fn(usize) -> bool| {
+            let mut cov = BandCovariance::new(channels, fs, [250.0, 4000.0]);
+            let mut frames: Vec<Vec<Vec<f64>>> = Vec::new();
+            let (mut start, mut turn) = (0, 0);
+            while start < len {
+                let take = blocks[turn % blocks.len()].min(len - start);
+                let block: Vec<&[f32]> = signal.iter().map(|c| &c[start..start + take]).collect();
+                let keep = |bands: &[Vec<f64>]| frames.push(bands.to_vec());
+                if parallel(turn) {
+                    cov.push_parallel(&block, keep);
+                } else {
+                    cov.push(&block, keep);
+                }
+                start += take;
+                turn += 1;
+            }
+            frames
+        };
+        let reference = run(&[4096], &|_| false);
+        assert_eq!(reference.len(), (len - 1024) / 512 + 1);
+        for (blocks, parallel) in [
+            (vec![4096], &(|_| true) as &dyn Fn(usize) -> bool),
+            (vec![1000, 37, 3000, 512, 1], &|_| true),
+            (vec![2048, 777], &|turn| turn % 2 == 0),
+        ] {
+            let frames = run(&blocks, parallel);
+            assert_eq!(frames.len(), reference.len(), "{blocks:?}");
+            for (a, b) in frames.iter().zip(&reference) {
+                for (x, y) in a.iter().flatten().zip(b.iter().flatten()) {
+                    assert_eq!(x.to_bits(), y.to_bits(), "{blocks:?}");
+                }
+            }
+        }
     }
 
     #[test]

@@ -1,5 +1,7 @@
 //! Prints how many times faster than real time `scan` runs on 16-bit PCM files of the demo
-//! scene, with the level meters on one thread and on a second thread beside the spatial side.
+//! scene, on one thread and split over the machine's cores (the level meters and the decoding
+//! of the next block beside the spatial side, the STFT frames of each block spread over the
+//! cores; see `Analyzer::set_parallel`).
 //!
 //! `cargo run --release -p fieldglass --example scan_speed [-- DIR]`
 //!
@@ -49,7 +51,7 @@ fn best_of_three(path: &Path, split: bool) -> f64 {
     (0..3)
         .map(|_| {
             let options = ScanOptions {
-                split_levels: split,
+                parallel: split,
                 ..ScanOptions::default()
             };
             let started = Instant::now();
@@ -75,7 +77,7 @@ fn main() {
         let two = best_of_three(&path, true);
         println!(
             "order {order}, {channels} ch, {seconds:.0} s: one thread {:.1}× real time ({one:.2} s), \
-             level side on a second thread {:.1}× real time ({two:.2} s)",
+             split over {cores} cores {:.1}× real time ({two:.2} s)",
             seconds / one,
             seconds / two
         );

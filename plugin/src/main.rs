@@ -435,9 +435,9 @@ fn run_scan(args: ScanArgs) -> Result<ExitCode, CliError> {
             .map_or(cores, |j| j as usize)
             .min(files.len().max(1));
         let options = batch::BatchOptions {
-            // A second thread per file only while cores are left over.
+            // One file over several cores only while cores are left over.
             scan: ScanOptions {
-                split_levels: jobs < cores,
+                parallel: jobs < cores,
                 ..scan_options(&args)
             },
             jobs,

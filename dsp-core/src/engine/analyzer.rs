@@ -111,8 +111,8 @@ pub struct Analyzer {
     format_not_applied: Option<String>,
     /// Input channels known to be absent (zero-filled components of a mixed-order set).
     absent_channels: Vec<usize>,
-    /// Run the level side on a second thread ([`Analyzer::set_split_levels`]).
-    split_levels: bool,
+    /// Spread each block over the rayon pool ([`Analyzer::set_parallel`]).
+    parallel: bool,
     finding_log: FindingLog,
 }
 
@@ -198,7 +198,7 @@ impl Analyzer {
             load_audio_s: 0.0,
             format_not_applied: None,
             absent_channels: Vec::new(),
-            split_levels: false,
+            parallel: false,
             finding_log: FindingLog::default(),
         })
         .map(|mut analyzer| {
@@ -339,12 +339,13 @@ impl Analyzer {
         self.frames_since_check = usize::MAX / 2;
     }
 
-    /// Runs the level side of each block (meters with true peak, W loudness) on a second
-    /// thread beside the spatial side (off by default: the plugin's analysis thread stays one
-    /// thread; the scanner uses both cores). The results are identical either way: the two
-    /// sides share no state.
-    pub fn set_split_levels(&mut self, split: bool) {
-        self.split_levels = split;
+    /// Spreads each block over the threads of the rayon pool: the channel meters (with true
+    /// peak), W's loudness and the STFT frames of the block run as separate tasks (off by
+    /// default: the plugin's analysis thread stays one thread; the scanner uses every core).
+    /// The results are identical either way: the tasks share no state, and each frame's
+    /// covariances are computed alone and then accumulated in order.
+    pub fn set_parallel(&mut self, parallel: bool) {
+        self.parallel = parallel;
     }
 
     pub fn reset_clips(&mut self) {
@@ -355,10 +356,22 @@ impl Analyzer {
     /// Analyses one block (planar, one slice per input channel, equal lengths). Returns true
     /// when a new snapshot is ready in [`snapshot`](Self::snapshot).
     pub fn process(&mut self, block: &[&[f32]]) -> bool {
+        self.process_beside(block, || ()).0
+    }
+
+    /// [`process`](Self::process), running `beside` meanwhile: in parallel
+    /// ([`set_parallel`](Self::set_parallel)) it is one more task of the pool beside the
+    /// block's (a scanner decodes its next block there), otherwise it runs after the block.
+    /// Returns whether a snapshot is ready, and what `beside` returned.
+    pub fn process_beside<T: Send>(
+        &mut self,
+        block: &[&[f32]],
+        beside: impl FnOnce() -> T + Send,
+    ) -> (bool, T) {
         let started = Instant::now();
         let frames = block.first().map_or(0, |c| c.len());
         if frames == 0 {
-            return false;
+            return (false, beside());
         }
         self.programme_frames += frames as u64;
         let m = self.layout.spatial_channels;
@@ -372,11 +385,19 @@ impl Analyzer {
             &mut self.w_scratch,
             &self.conversion,
         );
-        let mut levels = move || {
-            meters.push(block);
-            measure_w(conversion, loudness, w_scratch, block, frames);
+        let mut levels = move |parallel: bool| {
+            if parallel {
+                // Channels spread over the pool; W's loudness and `beside` run meanwhile.
+                rayon::join(
+                    || meters.push_parallel(block),
+                    || measure_w(conversion, loudness, w_scratch, block, frames),
+                );
+            } else {
+                meters.push(block);
+                measure_w(conversion, loudness, w_scratch, block, frames);
+            }
         };
-        let split = self.split_levels;
+        let parallel = self.parallel;
         let (live, integrated, count, diffuseness) = (
             &mut self.live,
             &mut self.integrated,
@@ -385,8 +406,8 @@ impl Analyzer {
         );
         let conversion = &self.conversion;
         let covariance = &mut self.covariance;
-        let mut spatial = move || {
-            covariance.push(&block[..m.min(block.len())], |bands| {
+        let mut spatial = move |parallel: bool| {
+            let on_frame = |bands: &[Vec<f64>]| {
                 for (b, frame) in bands.iter().enumerate() {
                     if !hold {
                         for (l, &f) in live[b].iter_mut().zip(frame) {
@@ -401,20 +422,28 @@ impl Analyzer {
                         diffuseness.push(b, &raw_first_order_moments(frame, m, conversion));
                     }
                 }
-            })
+            };
+            let spatial_block = &block[..m.min(block.len())];
+            if parallel {
+                // The frames of the block spread over the pool, beside the level side.
+                covariance.push_parallel(spatial_block, on_frame);
+            } else {
+                covariance.push(spatial_block, on_frame);
+            }
         };
-        if split {
-            std::thread::scope(|scope| {
-                let level_side = scope.spawn(levels);
-                spatial();
-                if let Err(panic) = level_side.join() {
-                    std::panic::resume_unwind(panic);
-                }
-            });
+        let beside_result = if parallel {
+            // Every piece of the block becomes a task of the pool (channel meters, loudness,
+            // `beside`, the STFT frames), so the cores share the work whatever its mix.
+            let (_, result) = rayon::join(
+                move || rayon::join(move || levels(true), move || spatial(true)),
+                beside,
+            );
+            result
         } else {
-            levels();
-            spatial();
-        }
+            levels(false);
+            spatial(false);
+            beside()
+        };
 
         self.time_s += frames as f64 / self.setup.sample_rate_hz;
         self.frames_since_map += frames;
@@ -434,7 +463,7 @@ impl Analyzer {
             self.load_busy_s = 0.0;
             self.load_audio_s = 0.0;
         }
-        ready
+        (ready, beside_result)
     }
 
     /// Forces a snapshot now (e.g. at the end of a file).
@@ -739,10 +768,24 @@ impl Analyzer {
     /// scale (either extreme code in integer PCM, |x| ≥ 1 in float). Call before the first
     /// block; it restarts the meters.
     pub fn set_full_scale(&mut self, full_scale: FullScale) -> Result<(), EngineError> {
-        let config = ChannelMeterConfig {
+        self.reconfigure_meters(ChannelMeterConfig {
             full_scale,
             ..*self.meters.config()
-        };
+        })
+    }
+
+    /// Keeps only the true-peak maxima, not the window and hold true peaks (see
+    /// [`ChannelMeterConfig::live_true_peak`]): for a file scan, which reads the whole-programme
+    /// figures. The maxima read the same bits either way. Call before the first block; it
+    /// restarts the meters.
+    pub fn set_live_true_peak(&mut self, live: bool) -> Result<(), EngineError> {
+        self.reconfigure_meters(ChannelMeterConfig {
+            live_true_peak: live,
+            ..*self.meters.config()
+        })
+    }
+
+    fn reconfigure_meters(&mut self, config: ChannelMeterConfig) -> Result<(), EngineError> {
         self.meters = ChannelMeters::new(self.setup.channels, self.setup.sample_rate_hz, config)
             .map_err(|e| EngineError::Settings(e.to_string()))?;
         Ok(())

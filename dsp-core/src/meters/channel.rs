@@ -51,6 +51,11 @@ pub struct ChannelMeterConfig {
     /// A channel whose window level exceeds W's by more than this is flagged, in dB.
     /// Default 0.5 dB.
     pub over_omni_tolerance_db: f64,
+    /// Measure the window and hold true peaks (a live meter). Off, only the maxima are kept
+    /// (since reset and whole programme, both exact), the true-peak filter runs only where a
+    /// new maximum is possible, and the window and hold true-peak readings are the floor
+    /// ([`LEVEL_FLOOR_DB`]): for a file scan, which reads the maxima alone. Default on.
+    pub live_true_peak: bool,
 }
 
 impl Default for ChannelMeterConfig {
@@ -61,6 +66,7 @@ impl Default for ChannelMeterConfig {
             peak_hold_s: 2.0,
             full_scale: FullScale::Float,
             over_omni_tolerance_db: 0.5,
+            live_true_peak: true,
         }
     }
 }
@@ -565,57 +571,49 @@ impl ChannelMeters {
     /// [`channels`](Self::channels) are ignored and missing ones are left as they are; each
     /// channel advances by its own slice length. Never allocates.
     pub fn push(&mut self, input: &[&[f32]]) {
-        let (high, low) = self.config.full_scale.thresholds();
-        for (state, samples) in self.channels.iter_mut().zip(input) {
-            let mut offset = 0;
-            while offset < samples.len() {
-                // A piece never crosses a segment boundary, so the statistics loop is plain.
-                let room = self.segment_len - state.current_fill;
-                let n = room.min(samples.len() - offset).min(CHUNK);
-                let piece = &samples[offset..offset + n];
-                // The true-peak filter already scans the piece: take its sample peak and
-                // its count of non-finite samples.
-                let peaks = state.true_peak.measure(piece);
-                let finite = peaks.invalid_samples == 0;
-                state
-                    .lanes
-                    .add(piece, state.current_fill, finite, &self.dc_weights);
-                let (peak, valid) = (peaks.sample_peak, n as u64 - peaks.invalid_samples);
-                count_clips(state, piece, peak, high, low);
-                let seg = &mut state.current;
-                seg.valid_count += valid;
-                seg.sample_peak = seg.sample_peak.max(f64::from(peak));
-                seg.true_peak = seg.true_peak.max(peaks.true_peak);
-                state.invalid_sample_count += peaks.invalid_samples;
-                let programme = &mut state.programme;
-                programme.max_sample_peak = programme.max_sample_peak.max(f64::from(peak));
-                programme.max_true_peak = programme.max_true_peak.max(peaks.true_peak);
-                programme.valid_samples += valid;
-                programme.invalid_samples += peaks.invalid_samples;
-                state.current_fill += n;
-                offset += n;
-                if state.current_fill == self.segment_len {
-                    finish_segment(
-                        state,
-                        &self.dc_weights,
-                        self.segment_s,
-                        self.config.peak_hold_s,
-                    );
-                }
-            }
+        let (strip, channels) = self.split();
+        for (state, samples) in channels.iter_mut().zip(input) {
+            strip.push_channel(state, samples);
         }
+    }
+
+    /// [`push`](Self::push) with the channels spread over the threads of the rayon pool. Each
+    /// channel's meters are its own, so the readings are the same bits.
+    pub fn push_parallel(&mut self, input: &[&[f32]]) {
+        use rayon::prelude::*;
+        let (strip, channels) = self.split();
+        channels
+            .par_iter_mut()
+            .zip(input.par_iter())
+            .with_min_len(2)
+            .for_each(|(state, samples)| strip.push_channel(state, samples));
+    }
+
+    /// What the channels share, beside the channels themselves.
+    fn split(&mut self) -> (StripConstants<'_>, &mut [ChannelState]) {
+        let strip = StripConstants {
+            config: &self.config,
+            segment_len: self.segment_len,
+            segment_s: self.segment_s,
+            dc_weights: &self.dc_weights,
+        };
+        (strip, &mut self.channels)
     }
 
     /// Snapshot of `channel`, or `None` if there is no such channel.
     pub fn reading(&self, channel: usize) -> Option<ChannelReading> {
         let state = self.channels.get(channel)?;
         let window = &state.window;
+        let live_true_peak = |linear: f64| match self.config.live_true_peak {
+            true => amplitude_to_db(linear),
+            false => LEVEL_FLOOR_DB,
+        };
         Some(ChannelReading {
             sample_peak_dbfs: amplitude_to_db(window.sample_peak),
-            true_peak_dbtp: amplitude_to_db(window.true_peak),
+            true_peak_dbtp: live_true_peak(window.true_peak),
             rms_dbfs: mean_square_to_db(state.window_mean_square()),
             peak_hold_dbfs: amplitude_to_db(state.sample_hold.value),
-            true_peak_hold_dbtp: amplitude_to_db(state.true_peak_hold.value),
+            true_peak_hold_dbtp: live_true_peak(state.true_peak_hold.value),
             max_sample_peak_dbfs: amplitude_to_db(state.max_sample_peak),
             max_true_peak_dbtp: amplitude_to_db(state.max_true_peak),
             clip_count: state.clips.count,
@@ -725,6 +723,65 @@ impl ChannelMeters {
     pub fn reset(&mut self) {
         for state in &mut self.channels {
             *state = ChannelState::new(state.ring.len());
+        }
+    }
+}
+
+/// What every channel of a strip shares while a block is metered.
+#[derive(Clone, Copy)]
+struct StripConstants<'a> {
+    config: &'a ChannelMeterConfig,
+    segment_len: usize,
+    segment_s: f64,
+    dc_weights: &'a DcWeights,
+}
+
+impl StripConstants<'_> {
+    /// Meters one channel's samples of a block.
+    fn push_channel(&self, state: &mut ChannelState, samples: &[f32]) {
+        let (high, low) = self.config.full_scale.thresholds();
+        let mut offset = 0;
+        while offset < samples.len() {
+            // A piece never crosses a segment boundary, so the statistics loop is plain.
+            let room = self.segment_len - state.current_fill;
+            let n = room.min(samples.len() - offset).min(CHUNK);
+            let piece = &samples[offset..offset + n];
+            // The true-peak filter already scans the piece: take its sample peak and its
+            // count of non-finite samples.
+            let peaks = if self.config.live_true_peak {
+                state.true_peak.measure(piece)
+            } else {
+                // Only the maxima are read: below the smaller of them nothing can show.
+                let since_reset = state.max_true_peak.max(state.current.true_peak);
+                let floor = since_reset.min(state.programme.max_true_peak);
+                state.true_peak.measure_above(piece, floor)
+            };
+            let finite = peaks.invalid_samples == 0;
+            state
+                .lanes
+                .add(piece, state.current_fill, finite, self.dc_weights);
+            let (peak, valid) = (peaks.sample_peak, n as u64 - peaks.invalid_samples);
+            count_clips(state, piece, peak, high, low);
+            let seg = &mut state.current;
+            seg.valid_count += valid;
+            seg.sample_peak = seg.sample_peak.max(f64::from(peak));
+            seg.true_peak = seg.true_peak.max(peaks.true_peak);
+            state.invalid_sample_count += peaks.invalid_samples;
+            let programme = &mut state.programme;
+            programme.max_sample_peak = programme.max_sample_peak.max(f64::from(peak));
+            programme.max_true_peak = programme.max_true_peak.max(peaks.true_peak);
+            programme.valid_samples += valid;
+            programme.invalid_samples += peaks.invalid_samples;
+            state.current_fill += n;
+            offset += n;
+            if state.current_fill == self.segment_len {
+                finish_segment(
+                    state,
+                    self.dc_weights,
+                    self.segment_s,
+                    self.config.peak_hold_s,
+                );
+            }
         }
     }
 }

@@ -70,6 +70,27 @@ const TRUE_PEAK_PHASES_F32: [[f32; TAPS_PER_PHASE]; TRUE_PEAK_OVERSAMPLING] = {
     out
 };
 
+/// An upper bound on the gain of any phase: |interpolated sample| ≤ this × the largest |input|
+/// among the 12 samples it is made of. The largest Σ|h| over the phases (2.0228 for phases 1
+/// and 2) raised by 10⁻⁴, far more than the f32 rounding of a 12-term sum (≈ 10⁻⁶ relative).
+const PHASE_GAIN_BOUND: f64 = {
+    let mut largest = 0.0f64;
+    let mut p = 0;
+    while p < TRUE_PEAK_OVERSAMPLING {
+        let mut sum = 0.0;
+        let mut k = 0;
+        while k < TAPS_PER_PHASE {
+            sum += TRUE_PEAK_PHASES[p][k].abs();
+            k += 1;
+        }
+        if sum > largest {
+            largest = sum;
+        }
+        p += 1;
+    }
+    largest * (1.0 + 1e-4)
+};
+
 /// True when no sample is NaN or ±∞ (eight lanes, so the loop vectorises).
 fn all_finite(samples: &[f32]) -> bool {
     let mut lanes = [true; 8];
@@ -80,6 +101,32 @@ fn all_finite(samples: &[f32]) -> bool {
         }
     }
     lanes.iter().all(|&l| l) && chunks.remainder().iter().all(|x| x.is_finite())
+}
+
+/// The largest |x| when every sample is finite, in one pass (eight lanes, so it vectorises);
+/// `None` when one is NaN or ±∞.
+fn finite_peak(samples: &[f32]) -> Option<f32> {
+    let mut peak = [0.0f32; 8];
+    let mut finite = [true; 8];
+    let mut chunks = samples.chunks_exact(8);
+    for chunk in &mut chunks {
+        for ((p, f), &x) in peak.iter_mut().zip(&mut finite).zip(chunk) {
+            let a = x.abs();
+            *f &= a <= f32::MAX;
+            *p = p.max(a);
+        }
+    }
+    let mut tail_peak = 0.0f32;
+    for &x in chunks.remainder() {
+        if !x.is_finite() {
+            return None;
+        }
+        tail_peak = tail_peak.max(x.abs());
+    }
+    finite
+        .iter()
+        .all(|&f| f)
+        .then(|| peak.iter().fold(tail_peak, |m, &p| m.max(p)))
 }
 
 /// Outputs filtered together, held in registers (4 phases × 8 lanes).
@@ -187,7 +234,8 @@ impl TruePeakMeter {
     /// it produced.
     #[inline]
     pub fn process_sample(&mut self, sample: f32) -> f64 {
-        self.process_chunk(std::slice::from_ref(&sample)).true_peak
+        self.process_chunk(std::slice::from_ref(&sample), -1.0)
+            .true_peak
     }
 
     /// Feeds a block; returns the block's true peak (linear). Never allocates.
@@ -198,10 +246,21 @@ impl TruePeakMeter {
     /// Feeds a block; returns its true peak together with what the filter learnt on the way
     /// (sample peak and non-finite count), so a caller need not scan the block again.
     pub fn measure(&mut self, samples: &[f32]) -> BlockPeaks {
+        self.measure_above(samples, -1.0)
+    }
+
+    /// [`measure`](Self::measure) for a caller that only keeps running maxima of at least
+    /// `floor`: the returned true peak is exact when it exceeds `floor`, and otherwise some
+    /// value between the sample peak and `floor`. The filter runs only on the pieces whose
+    /// bound ([`PHASE_GAIN_BOUND`] × their largest input) exceeds `floor`, so a whole-programme
+    /// maximum costs little once the loudest passage is behind it. The filter history, the peak
+    /// since reset and the sample peak stay exact.
+    pub fn measure_above(&mut self, samples: &[f32], floor: f64) -> BlockPeaks {
         samples
             .chunks(CHUNK)
             .fold(BlockPeaks::default(), |total, chunk| {
-                let piece = self.process_chunk(chunk);
+                let floor = floor.max(total.true_peak);
+                let piece = self.process_chunk(chunk, floor);
                 BlockPeaks {
                     sample_peak: total.sample_peak.max(piece.sample_peak),
                     true_peak: total.true_peak.max(piece.true_peak),
@@ -214,11 +273,32 @@ impl TruePeakMeter {
     /// the interpolated samples they produced.
     ///
     /// Each output is summed tap by tap in the same order whatever the chunking, so results do
-    /// not depend on block sizes.
-    fn process_chunk(&mut self, chunk: &[f32]) -> BlockPeaks {
+    /// not depend on block sizes. The filter is skipped when no interpolated sample can exceed
+    /// `floor` (see [`measure_above`](Self::measure_above)); the result is then the sample peak.
+    fn process_chunk(&mut self, chunk: &[f32], floor: f64) -> BlockPeaks {
         let n = chunk.len().min(CHUNK);
         if n == 0 {
             return BlockPeaks::default();
+        }
+        // The peak since reset stays exact too: never skip above it.
+        let floor = floor.min(self.max_abs);
+        if let Some(sample_peak) = finite_peak(&chunk[..n]) {
+            let input_peak = sample_peak.max(super::abs_max(&self.history[..TAPS_PER_PHASE - 1]));
+            if f64::from(input_peak) * PHASE_GAIN_BOUND <= floor {
+                // No interpolated sample can reach `floor`: only the history moves on.
+                let kept = n.min(TAPS_PER_PHASE);
+                self.history.rotate_right(kept);
+                for (h, &x) in self.history[..kept].iter_mut().zip(chunk[..n].iter().rev()) {
+                    *h = x;
+                }
+                let peak = f64::from(sample_peak);
+                self.max_abs = self.max_abs.max(peak);
+                return BlockPeaks {
+                    sample_peak,
+                    true_peak: peak,
+                    invalid_samples: 0,
+                };
+            }
         }
         // ext = [11 previous samples, oldest first | the chunk, sanitised]
         let mut ext = [0.0f32; CHUNK + TAPS_PER_PHASE - 1];
@@ -239,7 +319,12 @@ impl TruePeakMeter {
         self.invalid_sample_count += invalid_samples;
         // Non-finite samples are 0 here, so this is the peak of the finite ones.
         let sample_peak = super::abs_max(fresh);
-        let peak = sample_peak.max(interpolated_peak(&ext, n));
+        let input_peak = sample_peak.max(super::abs_max(&ext[..TAPS_PER_PHASE - 1]));
+        let peak = if f64::from(input_peak) * PHASE_GAIN_BOUND <= floor {
+            sample_peak
+        } else {
+            sample_peak.max(interpolated_peak(&ext, n))
+        };
         for (k, h) in self.history.iter_mut().enumerate() {
             *h = ext[TAPS_PER_PHASE - 1 + n - 1 - k];
         }
@@ -314,6 +399,87 @@ mod tests {
                 meter.push(piece);
             }
             assert_eq!(meter.peak_linear(), f64::from(plain), "block {block}");
+        }
+    }
+
+    #[test]
+    fn phase_gain_bound_covers_every_phase() {
+        // Σ|h| of the Annex 2 table's phases, summed in Python from the table: 2.0228271...
+        // (phase 1) and 1.4342041... (phase 0); the bound sits just above both.
+        let sums: Vec<f64> = TRUE_PEAK_PHASES
+            .iter()
+            .map(|p| p.iter().map(|h| h.abs()).sum())
+            .collect();
+        assert!((sums[1] - 2.022_827_148_437_5).abs() < 1e-9, "{sums:?}");
+        assert!((sums[0] - 1.434_204_101_562_5).abs() < 1e-9, "{sums:?}");
+        assert!(
+            sums.iter()
+                .all(|&s| s < PHASE_GAIN_BOUND && PHASE_GAIN_BOUND < s * 1.001 + 1.0)
+        );
+    }
+
+    /// A running maximum kept with `measure_above` (the floor being that maximum) reads the very
+    /// bits of one kept with `measure`, on material whose loud passages come early, late and in
+    /// bursts; and the filter was in fact skipped on most pieces of the decaying part.
+    #[test]
+    fn running_maximum_above_a_floor_is_exact() {
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut noise = move || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            (state >> 40) as f32 / (1u64 << 23) as f32 - 1.0
+        };
+        let n = 48_000;
+        let signal: Vec<f32> = (0..n)
+            .map(|i| {
+                let t = i as f32 / n as f32;
+                // A decaying tone with noise, a burst in the middle, and near the end a quarter
+                // sample-rate sine at 45° whose samples (±0.67) stay below the early peak
+                // (≈ 0.85) while its true peak (≈ 0.95) does not.
+                let tone = (i as f32 * 0.37).sin() * (1.0 - t) * 0.8 + 0.05 * noise();
+                let burst = if (24_000..24_300).contains(&i) {
+                    0.6 * noise()
+                } else {
+                    0.0
+                };
+                let late = if (47_000..47_200).contains(&i) {
+                    0.95 * (std::f32::consts::FRAC_PI_2 * i as f32 + std::f32::consts::FRAC_PI_4)
+                        .sin()
+                } else {
+                    0.0
+                };
+                tone + burst + late
+            })
+            .collect();
+        for block in [5, 64, 256, 480, 4096] {
+            let (mut exact, mut pruned) = (TruePeakMeter::new(), TruePeakMeter::new());
+            let (mut max_exact, mut max_pruned) = (0.0f64, 0.0f64);
+            let mut skipped = 0;
+            for piece in signal.chunks(block) {
+                let a = exact.measure(piece);
+                let b = pruned.measure_above(piece, max_pruned);
+                assert_eq!(a.sample_peak.to_bits(), b.sample_peak.to_bits());
+                assert!(b.true_peak <= a.true_peak && b.true_peak >= f64::from(b.sample_peak));
+                skipped += usize::from(b.true_peak < a.true_peak);
+                max_exact = max_exact.max(a.true_peak);
+                max_pruned = max_pruned.max(b.true_peak);
+                assert_eq!(max_exact.to_bits(), max_pruned.to_bits(), "block {block}");
+            }
+            assert_eq!(
+                exact.peak_linear().to_bits(),
+                pruned.peak_linear().to_bits()
+            );
+            assert!(
+                max_exact > 0.9,
+                "the late sine reads above its samples: {max_exact}"
+            );
+            // A lower bound on the skipped pieces (one whose filter would have read no more
+            // than its samples does not count): a fair share of the quiet half.
+            assert!(
+                skipped * block > n / 4,
+                "block {block}: {skipped} pieces skipped"
+            );
         }
     }
 }

@@ -64,9 +64,10 @@ pub struct ScanOptions {
     pub over_omni_tolerance_db: f64,
     /// Show a progress bar on stderr (only if stderr is a terminal and the input is long).
     pub progress: bool,
-    /// Run the level meters on a second thread beside the spatial analysis (identical
-    /// results; off when a batch already keeps every core busy with other files).
-    pub split_levels: bool,
+    /// Spread each block over the cores: the channel meters, W's loudness, the next block's
+    /// decoding and the STFT frames at once (identical results; off when a batch already keeps
+    /// every core busy with other files).
+    pub parallel: bool,
 }
 
 impl Default for ScanOptions {
@@ -79,7 +80,7 @@ impl Default for ScanOptions {
             band_edges_hz: engine.band_edges_hz,
             over_omni_tolerance_db: engine.over_omni_tolerance_db,
             progress: false,
-            split_levels: true,
+            parallel: true,
         }
     }
 }
@@ -543,33 +544,21 @@ pub fn scan_observed(
         analyzer.set_absent_channels(e.absent_channels());
     }
     analyzer.reserve_block(BLOCK_FRAMES);
-    analyzer.set_split_levels(options.split_levels);
+    analyzer.set_parallel(options.parallel);
+    // The scan reads the true-peak maxima only, never the live window.
+    analyzer
+        .set_live_true_peak(false)
+        .map_err(|e| CliError::input(format!("cannot scan '{name}': {e}")))?;
 
     let mut progress = progress(&info);
-    let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); analysed_channels];
-    let mut timeline = Vec::new();
-    let mut timeline_stride = 1usize;
-    let mut snapshots_seen = 0usize;
-    let mut frames_read = 0u64;
-    loop {
-        let n = source.read(&mut buffers, &name)?;
-        if n == 0 {
-            break;
-        }
-        frames_read += n as u64;
-        let block: Vec<&[f32]> = buffers.iter().map(|b| &b[..n]).collect();
-        if analyzer.process(&block) {
-            snapshots_seen += 1;
-            if snapshots_seen.is_multiple_of(timeline_stride) {
-                timeline.push(timeline_point(analyzer.snapshot()));
-                if timeline.len() >= TIMELINE_MAX_POINTS {
-                    timeline = timeline.into_iter().step_by(2).collect();
-                    timeline_stride *= 2;
-                }
-            }
-        }
-        progress.advance(n as u64);
-    }
+    let mut stream = || analyse_stream(&mut analyzer, &mut source, &name, &mut progress);
+    // Split, the loop runs on a thread of the pool the engine spreads each block over, so
+    // that no block has to be handed from this thread to the pool and back.
+    let (timeline, frames_read) = if options.parallel {
+        rayon::scope(|_| stream())?
+    } else {
+        stream()?
+    };
     progress.finish();
     if frames_read == 0 {
         return Err(CliError::input(format!(
@@ -656,6 +645,45 @@ pub fn scan_observed(
         findings,
         analysis_s: started.elapsed().as_secs_f64(),
     })
+}
+
+/// Reads `source` to its end through `analyzer`, the next block decoded beside the analysis of
+/// the current one. Returns the timeline and the frames read.
+fn analyse_stream(
+    analyzer: &mut Analyzer,
+    source: &mut Source,
+    name: &str,
+    progress: &mut Progress,
+) -> Result<(Vec<TimelinePoint>, u64), CliError> {
+    let channels = analyzer.setup().channels;
+    // Two sets of buffers: the next block is decoded into one while the other is analysed.
+    let mut buffers: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); channels];
+    let mut next_buffers = buffers.clone();
+    let mut timeline = Vec::new();
+    let mut timeline_stride = 1usize;
+    let mut snapshots_seen = 0usize;
+    let mut frames_read = 0u64;
+    let mut n = source.read(&mut buffers, name)?;
+    while n > 0 {
+        frames_read += n as u64;
+        let block: Vec<&[f32]> = buffers.iter().map(|b| &b[..n]).collect();
+        let (ready, next) =
+            analyzer.process_beside(&block, || source.read(&mut next_buffers, name));
+        if ready {
+            snapshots_seen += 1;
+            if snapshots_seen.is_multiple_of(timeline_stride) {
+                timeline.push(timeline_point(analyzer.snapshot()));
+                if timeline.len() >= TIMELINE_MAX_POINTS {
+                    timeline = timeline.into_iter().step_by(2).collect();
+                    timeline_stride *= 2;
+                }
+            }
+        }
+        progress.advance(n as u64);
+        std::mem::swap(&mut buffers, &mut next_buffers);
+        n = next?;
+    }
+    Ok((timeline, frames_read))
 }
 
 fn timeline_point(snapshot: &Snapshot) -> TimelinePoint {
