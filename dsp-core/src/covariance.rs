@@ -363,68 +363,135 @@ fn complex_as_f32(values: &[Complex<f32>]) -> &[f32] {
 
 /// product = A·Aᵀ where A is `rows × cols`, row stride `row_stride`, starting at `a[0]`.
 ///
-/// The product is symmetric: from 16 rows on, only the blocks on and above the diagonal are
-/// multiplied (the top half of the rows against all rows, the bottom half against itself: ¾ of
-/// the work) and the rest is mirrored, so the result is exactly symmetric.
+/// Hand-written rather than a general matrix product: the rows are already contiguous, so the
+/// dot-product form needs no packing (a general product spent more time packing than
+/// multiplying at 16 channels), and only the upper triangle is computed, then mirrored, so the
+/// result is exactly symmetric. Every entry is summed the same way whatever the tile that
+/// computes it and whatever the CPU: eight lanes over k (lane l takes k ≡ l mod 8, in order,
+/// fused multiply-adds), the lanes added pairwise, then the remainder columns in order. With
+/// AVX2 and FMA the lanes are one register; without, the same fused operations run one by one
+/// (the same bits, more slowly).
 fn gram(a: &[f32], rows: usize, cols: usize, row_stride: usize, product: &mut [f32]) {
-    let half = if rows >= 16 { rows / 2 } else { rows };
-    // Top rows [0, half) against all rows.
-    sgemm_rows(a, half, rows, cols, row_stride, product, rows);
-    if half < rows {
-        // Bottom rows [half, rows) against themselves.
-        let (a_low, c_low) = (&a[half * row_stride..], &mut product[half * rows + half..]);
-        sgemm_rows(
-            a_low,
-            rows - half,
-            rows - half,
-            cols,
-            row_stride,
-            c_low,
-            rows,
-        );
-        for i in half..rows {
-            for j in 0..half {
-                product[i * rows + j] = product[j * rows + i];
+    assert!(rows == 0 || a.len() >= (rows - 1) * row_stride + cols);
+    assert!(product.len() >= rows * rows);
+    let row = |i: usize| &a[i * row_stride..i * row_stride + cols];
+    // Tiles of 2 rows × 4 rows (8 accumulators, 6 inputs in registers) on and above the
+    // diagonal; at the edges a tile repeats its last row and only its real entries are kept.
+    for i in (0..rows).step_by(2) {
+        let left = [row(i), row((i + 1).min(rows - 1))];
+        for j in (i - i % 4..rows).step_by(4) {
+            let right: [&[f32]; 4] = std::array::from_fn(|y| row((j + y).min(rows - 1)));
+            let tile = dot_2x4(left, right);
+            for (x, line) in tile.iter().enumerate() {
+                for (y, &value) in line.iter().enumerate() {
+                    if i + x < rows && j + y < rows {
+                        product[(i + x) * rows + j + y] = value;
+                    }
+                }
             }
+        }
+    }
+    // Mirror: below the diagonal from above it (the tiles also wrote some entries below the
+    // diagonal, with the same value).
+    for i in 1..rows {
+        for j in 0..i {
+            product[i * rows + j] = product[j * rows + i];
         }
     }
 }
 
-/// c[i·c_stride + j] = Σ_k a[i·row_stride + k]·a[j·row_stride + k] for i < `left`, j < `right`
-/// (`left` ≤ `right`: the left rows are the first of the right ones).
-fn sgemm_rows(
-    a: &[f32],
-    left: usize,
-    right: usize,
-    cols: usize,
-    row_stride: usize,
-    c: &mut [f32],
-    c_stride: usize,
-) {
-    assert!(left <= right && right <= c_stride);
-    assert!(right == 0 || a.len() >= (right - 1) * row_stride + cols);
-    assert!(left == 0 || c.len() >= (left - 1) * c_stride + right);
-    // SAFETY: the asserts above bound every index matrixmultiply touches: A is read at
-    // i·row_stride + k for i < right, k < cols; C is written at i·c_stride + j for i < left,
-    // j < right. With beta = 0, C is written without being read.
-    unsafe {
-        matrixmultiply::sgemm(
-            left,
-            cols,
-            right,
-            1.0,
-            a.as_ptr(),
-            row_stride as isize,
-            1,
-            a.as_ptr(),
-            1,
-            row_stride as isize,
-            0.0,
-            c.as_mut_ptr(),
-            c_stride as isize,
-            1,
-        );
+/// Lanes of the dot products (one 256-bit register of f32).
+const GRAM_LANES: usize = 8;
+
+/// Dot products of 2 rows with 4 rows (equal lengths), each summed as described at [`gram`].
+fn dot_2x4(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
+    let cols = left[0].len();
+    assert!(left.iter().chain(&right).all(|r| r.len() == cols));
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
+        {
+            // SAFETY: the CPU has AVX2 and FMA (checked just above); every row holds `cols`
+            // values (asserted).
+            return unsafe { dot_2x4_fma(left, right) };
+        }
     }
+    dot_2x4_portable(left, right)
+}
+
+/// [`dot_2x4`] one fused operation at a time.
+#[inline(always)]
+fn dot_2x4_portable(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
+    let full = left[0].len() - left[0].len() % GRAM_LANES;
+    let mut lanes = [[[0.0f32; GRAM_LANES]; 4]; 2];
+    for k in (0..full).step_by(GRAM_LANES) {
+        for (x, l) in left.iter().enumerate() {
+            for (y, r) in right.iter().enumerate() {
+                for (lane, acc) in lanes[x][y].iter_mut().enumerate() {
+                    *acc = l[k + lane].mul_add(r[k + lane], *acc);
+                }
+            }
+        }
+    }
+    finish_2x4(&lanes, left, right, full)
+}
+
+/// The eight lanes of each pair added pairwise, then the columns past the last whole group.
+#[inline(always)]
+fn finish_2x4(
+    lanes: &[[[f32; GRAM_LANES]; 4]; 2],
+    left: [&[f32]; 2],
+    right: [&[f32]; 4],
+    full: usize,
+) -> [[f32; 4]; 2] {
+    let mut sums = [[0.0f32; 4]; 2];
+    for x in 0..2 {
+        for y in 0..4 {
+            let v = &lanes[x][y];
+            let mut sum = ((v[0] + v[1]) + (v[2] + v[3])) + ((v[4] + v[5]) + (v[6] + v[7]));
+            for k in full..left[x].len() {
+                sum = left[x][k].mul_add(right[y][k], sum);
+            }
+            sums[x][y] = sum;
+        }
+    }
+    sums
+}
+
+/// [`dot_2x4`] with AVX2 and FMA: the eight lanes of each pair are one register.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn dot_2x4_fma(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
+    use std::arch::x86_64::*;
+    let full = left[0].len() - left[0].len() % GRAM_LANES;
+    let (l0, l1) = (left[0].as_ptr(), left[1].as_ptr());
+    let r = [
+        right[0].as_ptr(),
+        right[1].as_ptr(),
+        right[2].as_ptr(),
+        right[3].as_ptr(),
+    ];
+    let mut acc = [_mm256_setzero_ps(); 8];
+    let mut k = 0;
+    while k < full {
+        // SAFETY: k + 8 ≤ full ≤ the length of every row (asserted by the caller).
+        unsafe {
+            let (a0, a1) = (_mm256_loadu_ps(l0.add(k)), _mm256_loadu_ps(l1.add(k)));
+            for y in 0..4 {
+                let b = _mm256_loadu_ps(r[y].add(k));
+                acc[y] = _mm256_fmadd_ps(a0, b, acc[y]);
+                acc[4 + y] = _mm256_fmadd_ps(a1, b, acc[4 + y]);
+            }
+        }
+        k += GRAM_LANES;
+    }
+    let mut lanes = [[[0.0f32; GRAM_LANES]; 4]; 2];
+    for (n, v) in acc.iter().enumerate() {
+        // SAFETY: a store of 8 f32 into an array of 8 f32.
+        unsafe { _mm256_storeu_ps(lanes[n / 4][n % 4].as_mut_ptr(), *v) };
+    }
+    // Inlined here, so the remainder's fused multiply-adds are instructions too.
+    finish_2x4(&lanes, left, right, full)
 }
 
 #[cfg(test)]
@@ -438,6 +505,34 @@ mod tests {
         assert_eq!(StftFraming::for_sample_rate(96_000.0).frame_len, 2048);
         assert_eq!(StftFraming::for_sample_rate(22_050.0).frame_len, 512);
         assert_eq!(StftFraming::for_sample_rate(384_000.0).frame_len, 8192);
+    }
+
+    /// The register tile and the portable one-by-one fused sums give the same bits (on a CPU
+    /// with AVX2 and FMA this compares the two paths).
+    #[test]
+    fn register_tiles_sum_like_the_portable_path() {
+        for cols in [0, 5, 8, 37, 1026] {
+            let rows: Vec<Vec<f32>> = (0..6)
+                .map(|r| {
+                    (0..cols)
+                        .map(|k| ((r * 31 + k * 17) % 97) as f32 / 97.0 - 0.4)
+                        .collect()
+                })
+                .collect();
+            let left = [rows[0].as_slice(), &rows[1]];
+            let right = [rows[2].as_slice(), &rows[3], &rows[4], &rows[5]];
+            let tile = dot_2x4(left, right);
+            let portable = dot_2x4_portable(left, right);
+            for x in 0..2 {
+                for y in 0..4 {
+                    assert_eq!(
+                        tile[x][y].to_bits(),
+                        portable[x][y].to_bits(),
+                        "cols {cols}"
+                    );
+                }
+            }
+        }
     }
 
     #[test]

@@ -171,3 +171,42 @@ fn exit_codes_rank_fail_on_below_unreadable_inputs() {
     let out = run(&["scan", "a.wav", "n3d.wav", "--json", "-"], root);
     assert_eq!(out.status.code(), Some(2));
 }
+
+/// One file alone is spread over the cores (`--jobs 1` leaves cores free); in a batch of as many
+/// files as cores each file runs on one thread. The documents must agree to the last printed
+/// digit. (On a one-core machine both runs are on one thread and this checks only the batch.)
+#[test]
+fn a_file_reads_the_same_spread_over_the_cores_and_on_one_thread() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = dir.path();
+    let status = bin()
+        .args(["demo", "--write"])
+        .arg(root.join("a.wav"))
+        .args(["--seconds", "4", "--order", "3"])
+        .output()
+        .unwrap()
+        .status;
+    assert!(status.success());
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    for copy in 1..cores.max(2) {
+        std::fs::copy(root.join("a.wav"), root.join(format!("copy{copy}.wav"))).unwrap();
+    }
+    let alone = run(&["scan", "a.wav", "--jobs", "1", "--json-lines", "-"], root);
+    assert!(alone.status.success());
+    let alone = lines(&String::from_utf8(alone.stdout).unwrap());
+    let jobs = cores.max(2).to_string();
+    let mut args = vec!["scan", "a.wav"];
+    let copies: Vec<String> = (1..cores.max(2)).map(|c| format!("copy{c}.wav")).collect();
+    args.extend(copies.iter().map(String::as_str));
+    args.extend(["--jobs", &jobs, "--json-lines", "-"]);
+    let batch = run(&args, root);
+    assert!(batch.status.success());
+    let batch = lines(&String::from_utf8(batch.stdout).unwrap());
+    let in_batch = batch
+        .iter()
+        .find(|d| d["input"]["path"] == "a.wav")
+        .unwrap();
+    assert_eq!(alone.len(), 1);
+    assert_eq!(&alone[0], in_batch);
+    assert!(alone[0]["omni"]["true_peak_dbtp"].as_f64().unwrap() > -30.0);
+}
