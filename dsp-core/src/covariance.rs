@@ -3,8 +3,12 @@
 //!
 //! Frame length follows the sample rate so that a frame lasts about 21 ms (1024 samples at 44.1
 //! and 48 kHz, 2048 at 96 kHz, …, 512 at 22.05 kHz); the hop is half a frame and the window is a
-//! periodic Hann. Spectra are scaled so that the diagonal of the full-band matrix is the mean
+//! periodic Hann. The matrices are scaled so that the diagonal of the full-band one is the mean
 //! square of each channel over the frame (Parseval, one-sided spectrum): a unit sine reads 0.5.
+//!
+//! A scanner may analyse the frames of a block at once on the rayon pool
+//! ([`BandCovariance::push_parallel`]); each frame is the same pure function of its samples
+//! either way, so the matrices are the same bits.
 
 use realfft::num_complex::Complex;
 use realfft::{RealFftPlanner, RealToComplex};
