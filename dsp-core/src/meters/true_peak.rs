@@ -91,18 +91,6 @@ const PHASE_GAIN_BOUND: f64 = {
     largest * (1.0 + 1e-4)
 };
 
-/// True when no sample is NaN or ±∞ (eight lanes, so the loop vectorises).
-fn all_finite(samples: &[f32]) -> bool {
-    let mut lanes = [true; 8];
-    let mut chunks = samples.chunks_exact(8);
-    for chunk in &mut chunks {
-        for (l, &x) in lanes.iter_mut().zip(chunk) {
-            *l &= x.abs() <= f32::MAX;
-        }
-    }
-    lanes.iter().all(|&l| l) && chunks.remainder().iter().all(|x| x.is_finite())
-}
-
 /// The largest |x| when every sample is finite, in one pass (eight lanes, so it vectorises);
 /// `None` when one is NaN or ±∞.
 fn finite_peak(samples: &[f32]) -> Option<f32> {
@@ -251,10 +239,10 @@ impl TruePeakMeter {
 
     /// [`measure`](Self::measure) for a caller that only keeps running maxima of at least
     /// `floor`: the returned true peak is exact when it exceeds `floor`, and otherwise some
-    /// value between the sample peak and `floor`. The filter runs only on the pieces whose
-    /// bound ([`PHASE_GAIN_BOUND`] × their largest input) exceeds `floor`, so a whole-programme
-    /// maximum costs little once the loudest passage is behind it. The filter history, the peak
-    /// since reset and the sample peak stay exact.
+    /// value between the sample peak and `floor`. The filter is skipped on the pieces whose
+    /// bound ([`PHASE_GAIN_BOUND`] × their largest input) does not exceed `floor`, so a
+    /// whole-programme maximum costs little once the loudest passage is behind it. The filter
+    /// history, the peak since reset and the sample peak stay exact.
     pub fn measure_above(&mut self, samples: &[f32], floor: f64) -> BlockPeaks {
         samples
             .chunks(CHUNK)
@@ -280,25 +268,28 @@ impl TruePeakMeter {
         if n == 0 {
             return BlockPeaks::default();
         }
+        let chunk = &chunk[..n];
+        // One pass: the sample peak, or `None` when a sample is NaN or ±∞ (rare).
+        let clean_peak = finite_peak(chunk);
         // The peak since reset stays exact too: never skip above it.
         let floor = floor.min(self.max_abs);
-        if let Some(sample_peak) = finite_peak(&chunk[..n]) {
-            let input_peak = sample_peak.max(super::abs_max(&self.history[..TAPS_PER_PHASE - 1]));
-            if f64::from(input_peak) * PHASE_GAIN_BOUND <= floor {
-                // No interpolated sample can reach `floor`: only the history moves on.
-                let kept = n.min(TAPS_PER_PHASE);
-                self.history.rotate_right(kept);
-                for (h, &x) in self.history[..kept].iter_mut().zip(chunk[..n].iter().rev()) {
-                    *h = x;
-                }
-                let peak = f64::from(sample_peak);
-                self.max_abs = self.max_abs.max(peak);
-                return BlockPeaks {
-                    sample_peak,
-                    true_peak: peak,
-                    invalid_samples: 0,
-                };
+        let history_peak = super::abs_max(&self.history[..TAPS_PER_PHASE - 1]);
+        if let Some(sample_peak) = clean_peak
+            && f64::from(sample_peak.max(history_peak)) * PHASE_GAIN_BOUND <= floor
+        {
+            // No interpolated sample can reach `floor`: only the history moves on.
+            let kept = n.min(TAPS_PER_PHASE);
+            self.history.rotate_right(kept);
+            for (h, &x) in self.history[..kept].iter_mut().zip(chunk.iter().rev()) {
+                *h = x;
             }
+            let peak = f64::from(sample_peak);
+            self.max_abs = self.max_abs.max(peak);
+            return BlockPeaks {
+                sample_peak,
+                true_peak: peak,
+                invalid_samples: 0,
+            };
         }
         // ext = [11 previous samples, oldest first | the chunk, sanitised]
         let mut ext = [0.0f32; CHUNK + TAPS_PER_PHASE - 1];
@@ -306,25 +297,24 @@ impl TruePeakMeter {
             *e = self.history[TAPS_PER_PHASE - 2 - j];
         }
         let fresh = &mut ext[TAPS_PER_PHASE - 1..TAPS_PER_PHASE - 1 + n];
-        fresh.copy_from_slice(&chunk[..n]);
-        let mut invalid_samples = 0;
-        if !all_finite(fresh) {
-            for e in fresh.iter_mut() {
-                if !e.is_finite() {
-                    *e = 0.0;
-                    invalid_samples += 1;
+        fresh.copy_from_slice(chunk);
+        let (sample_peak, invalid_samples) = match clean_peak {
+            Some(sample_peak) => (sample_peak, 0),
+            None => {
+                let mut invalid_samples = 0;
+                for e in fresh.iter_mut() {
+                    if !e.is_finite() {
+                        *e = 0.0;
+                        invalid_samples += 1;
+                    }
                 }
+                // Non-finite samples are 0 now: the peak of the finite ones.
+                (super::abs_max(fresh), invalid_samples)
             }
-        }
-        self.invalid_sample_count += invalid_samples;
-        // Non-finite samples are 0 here, so this is the peak of the finite ones.
-        let sample_peak = super::abs_max(fresh);
-        let input_peak = sample_peak.max(super::abs_max(&ext[..TAPS_PER_PHASE - 1]));
-        let peak = if f64::from(input_peak) * PHASE_GAIN_BOUND <= floor {
-            sample_peak
-        } else {
-            sample_peak.max(interpolated_peak(&ext, n))
         };
+        self.invalid_sample_count += invalid_samples;
+        // A piece with non-finite samples always goes through the filter (rare, and exact).
+        let peak = sample_peak.max(interpolated_peak(&ext, n));
         for (k, h) in self.history.iter_mut().enumerate() {
             *h = ext[TAPS_PER_PHASE - 1 + n - 1 - k];
         }
