@@ -133,9 +133,8 @@ impl FrameScratch {
 /// Working memory of [`BandCovariance::push_parallel`]: the history and the block end to end
 /// per channel, one covariance set per frame of the block, one scratch per worker.
 struct FrameBatch {
-    /// Planar [channel][stride]: `filled` samples of history, then the block.
+    /// Planar [channel][filled + block length]: the history, then the block.
     stream: Vec<f32>,
-    stride: usize,
     /// [frame][band][i·M + j].
     frames: Vec<Vec<Vec<f64>>>,
     /// One per thread of the pool (indexed by the worker's index); a lock that is never
@@ -205,15 +204,7 @@ impl BandCovariance {
             let take = (n - self.filled).min(frames - offset);
             for c in 0..self.channels {
                 let dest = &mut self.history[c * n + self.filled..c * n + self.filled + take];
-                match input.get(c) {
-                    Some(src) => {
-                        for (d, &s) in dest.iter_mut().zip(&src[offset..offset + take]) {
-                            // Non-finite samples would poison every later estimate.
-                            *d = if s.is_finite() { s } else { 0.0 };
-                        }
-                    }
-                    None => dest.fill(0.0),
-                }
+                copy_sanitised(dest, input.get(c).map(|src| &src[offset..offset + take]));
             }
             self.filled += take;
             offset += take;
@@ -254,11 +245,9 @@ impl BandCovariance {
         let bins = self.framing.bins();
         let batch = self.batch.get_or_insert_with(|| FrameBatch {
             stream: Vec::new(),
-            stride: 0,
             frames: Vec::new(),
             scratch: Vec::new(),
         });
-        batch.stride = stride;
         batch.stream.resize(m * stride, 0.0);
         while batch.frames.len() < count {
             batch.frames.push(vec![vec![0.0; m * m]; BAND_COUNT]);
@@ -271,15 +260,7 @@ impl BandCovariance {
             let row = &mut batch.stream[c * stride..(c + 1) * stride];
             let (kept, fresh) = row.split_at_mut(self.filled);
             kept.copy_from_slice(&self.history[c * n..c * n + self.filled]);
-            match input.get(c) {
-                // Non-finite samples would poison every later estimate.
-                Some(src) => {
-                    for (d, &s) in fresh.iter_mut().zip(src.iter()) {
-                        *d = if s.is_finite() { s } else { 0.0 };
-                    }
-                }
-                None => fresh.fill(0.0),
-            }
+            copy_sanitised(fresh, input.get(c).map(|src| &src[..frames]));
         }
         let (frame, stream, scratch) = (&self.frame, &batch.stream, &batch.scratch);
         batch.frames[..count]
@@ -358,6 +339,19 @@ impl FrameAnalysis {
     }
 }
 
+/// Copies `src` into `dest` (same length) with NaN and ±∞ as 0, since they would poison every
+/// later estimate; a missing channel (`None`) is silence.
+fn copy_sanitised(dest: &mut [f32], src: Option<&[f32]>) {
+    match src {
+        Some(src) => {
+            for (d, &s) in dest.iter_mut().zip(src) {
+                *d = if s.is_finite() { s } else { 0.0 };
+            }
+        }
+        None => dest.fill(0.0),
+    }
+}
+
 /// A complex slice read as its re, im, re, im … parts.
 fn complex_as_f32(values: &[Complex<f32>]) -> &[f32] {
     // SAFETY: `Complex<f32>` is `#[repr(C)]` with fields `re`, `im` (num-complex documents
@@ -379,6 +373,7 @@ fn gram(a: &[f32], rows: usize, cols: usize, row_stride: usize, product: &mut [f
     assert!(rows == 0 || a.len() >= (rows - 1) * row_stride + cols);
     assert!(product.len() >= rows * rows);
     let row = |i: usize| &a[i * row_stride..i * row_stride + cols];
+    let dot_2x4 = tile_kernel();
     // Tiles of 2 rows × 4 rows (8 accumulators, 6 inputs in registers) on and above the
     // diagonal; at the edges a tile repeats its last row and only its real entries are kept.
     for i in (0..rows).step_by(2) {
@@ -408,22 +403,28 @@ fn gram(a: &[f32], rows: usize, cols: usize, row_stride: usize, product: &mut [f
 const GRAM_LANES: usize = 8;
 
 /// Dot products of 2 rows with 4 rows (equal lengths), each summed as described at [`gram`].
-fn dot_2x4(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
-    let cols = left[0].len();
-    assert!(left.iter().chain(&right).all(|r| r.len() == cols));
+/// Called through a pointer, so the CPU is asked once per product rather than once per tile.
+type TileKernel = fn([&[f32]; 2], [&[f32]; 4]) -> [[f32; 4]; 2];
+
+/// The tile kernel for this CPU: AVX2 and FMA registers where it has them, else the portable
+/// one (the same bits).
+fn tile_kernel() -> TileKernel {
     #[cfg(target_arch = "x86_64")]
     {
         if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
         {
-            // SAFETY: the CPU has AVX2 and FMA (checked just above); every row holds `cols`
-            // values (asserted).
-            return unsafe { dot_2x4_fma(left, right) };
+            return |left, right| {
+                assert!(left.iter().chain(&right).all(|r| r.len() == left[0].len()));
+                // SAFETY: the CPU has AVX2 and FMA (checked above); every row holds as many
+                // values as the first (asserted).
+                unsafe { dot_2x4_fma(left, right) }
+            };
         }
     }
-    dot_2x4_portable(left, right)
+    dot_2x4_portable
 }
 
-/// [`dot_2x4`] one fused operation at a time.
+/// The tile one fused operation at a time.
 #[inline(always)]
 fn dot_2x4_portable(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
     let full = left[0].len() - left[0].len() % GRAM_LANES;
@@ -462,7 +463,7 @@ fn finish_2x4(
     sums
 }
 
-/// [`dot_2x4`] with AVX2 and FMA: the eight lanes of each pair are one register.
+/// The tile with AVX2 and FMA: the eight lanes of each pair are one register.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2,fma")]
 unsafe fn dot_2x4_fma(left: [&[f32]; 2], right: [&[f32]; 4]) -> [[f32; 4]; 2] {
@@ -525,7 +526,7 @@ mod tests {
                 .collect();
             let left = [rows[0].as_slice(), &rows[1]];
             let right = [rows[2].as_slice(), &rows[3], &rows[4], &rows[5]];
-            let tile = dot_2x4(left, right);
+            let tile = tile_kernel()(left, right);
             let portable = dot_2x4_portable(left, right);
             for x in 0..2 {
                 for y in 0..4 {
