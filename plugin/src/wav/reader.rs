@@ -317,11 +317,8 @@ impl<R: Read + Seek> WavReader<R> {
                 break;
             }
             let target = &mut out[done * channels..(done + got) * channels];
-            decode(
-                self.decoding,
-                &self.scratch[..got * self.block_align],
-                |i, v| target[i] = v,
-            );
+            let bytes = &self.scratch[..got * self.block_align];
+            decode_planar(self.decoding, bytes, &mut [target], 0);
             done += got;
         }
         Ok(done)
@@ -411,35 +408,14 @@ impl<R: Read + Seek> WavReader<R> {
     }
 }
 
-/// Decodes little-endian samples, calling `sink(sample_index, value)` for each in file order.
-/// The match sits outside the loops so each format gets its own tight loop.
-fn decode(decoding: Decoding, bytes: &[u8], mut sink: impl FnMut(usize, f32)) {
-    fn each<const WIDTH: usize>(
-        bytes: &[u8],
-        sink: &mut impl FnMut(usize, f32),
-        sample: impl Fn([u8; WIDTH]) -> f32,
-    ) {
-        for (i, c) in bytes.chunks_exact(WIDTH).enumerate() {
-            sink(i, sample(c.try_into().expect("WIDTH bytes")));
-        }
-    }
-    match decoding {
-        Decoding::U8 => each(bytes, &mut sink, u8_sample),
-        Decoding::I16 => each(bytes, &mut sink, i16_sample),
-        Decoding::I24 => each(bytes, &mut sink, i24_sample),
-        Decoding::I32 => each(bytes, &mut sink, i32_sample),
-        Decoding::F32 => each(bytes, &mut sink, f32_sample),
-        Decoding::F64 => each(bytes, &mut sink, f64_sample),
-    }
-}
-
-/// Decodes the whole frames of interleaved `bytes` into `out[c][start..]`, one channel at a
-/// time (`out.len()` channels, each at least `start + frames` long). A per-sample sink with a
-/// modulo and a push made decoding a sixth of a scan; this loop is monomorphic per format.
-fn decode_planar(decoding: Decoding, bytes: &[u8], out: &mut [Vec<f32>], start: usize) {
+/// Decodes the whole frames of interleaved little-endian `bytes` into `out[c][start..]`, one
+/// channel at a time (`out.len()` channels, each at least `start + frames` long; one plane
+/// receives the samples interleaved, as they are). A per-sample sink with a modulo and a push
+/// made decoding a sixth of a scan; this loop is monomorphic per format.
+fn decode_planar(decoding: Decoding, bytes: &[u8], out: &mut [impl AsMut<[f32]>], start: usize) {
     fn planes<const WIDTH: usize>(
         bytes: &[u8],
-        out: &mut [Vec<f32>],
+        out: &mut [impl AsMut<[f32]>],
         start: usize,
         sample: impl Fn([u8; WIDTH]) -> f32,
     ) {
@@ -450,7 +426,8 @@ fn decode_planar(decoding: Decoding, bytes: &[u8], out: &mut [Vec<f32>], start: 
             let first = start + g * group;
             for (c, plane) in out.iter_mut().enumerate() {
                 let at = c * WIDTH;
-                for (d, frame) in plane[first..].iter_mut().zip(frames.chunks_exact(stride)) {
+                let plane = &mut plane.as_mut()[first..];
+                for (d, frame) in plane.iter_mut().zip(frames.chunks_exact(stride)) {
                     if let Some(bytes) = frame[at..].first_chunk::<WIDTH>() {
                         *d = sample(*bytes);
                     }
@@ -963,9 +940,11 @@ mod tests {
     }
 
     #[test]
-    fn planar_decoding_matches_the_sample_by_sample_one() {
-        // Every format, three channels, arbitrary bytes written at an offset into the planes.
-        let bytes: Vec<u8> = (0..3 * 8 * 7).map(|i| (i * 73 + 11) as u8).collect();
+    fn planar_decoding_matches_the_interleaved_samples() {
+        // Every format, three channels, arbitrary bytes written at an offset into the planes;
+        // long enough for several groups of frames. The reference: the samples decoded in file
+        // order into one plane, then dealt out to the channels by hand.
+        let bytes: Vec<u8> = (0..3 * 8 * 1400).map(|i| (i * 73 + 11) as u8).collect();
         for (decoding, width) in [
             (Decoding::U8, 1),
             (Decoding::I16, 2),
@@ -976,8 +955,12 @@ mod tests {
         ] {
             let frames = bytes.len() / (3 * width);
             let data = &bytes[..frames * 3 * width];
+            let mut interleaved = vec![0.0f32; 3 * frames];
+            decode_planar(decoding, data, &mut [interleaved.as_mut_slice()], 0);
             let mut expected = vec![vec![-9.0f32; 2]; 3];
-            decode(decoding, data, |i, v| expected[i % 3].push(v));
+            for (i, &v) in interleaved.iter().enumerate() {
+                expected[i % 3].push(v);
+            }
             let mut planes = vec![vec![-9.0f32; 2 + frames]; 3];
             decode_planar(decoding, data, &mut planes, 2);
             for (got, want) in planes.iter().zip(&expected) {
@@ -992,15 +975,12 @@ mod tests {
 
     #[test]
     fn decodes_integer_extremes() {
-        let mut got = Vec::new();
-        decode(
-            Decoding::I24,
-            &[0x00, 0x00, 0x80, 0xFF, 0xFF, 0x7F],
-            |_, v| got.push(v),
-        );
+        let mut got = [0.0f32; 2];
+        let bytes = [0x00, 0x00, 0x80, 0xFF, 0xFF, 0x7F];
+        decode_planar(Decoding::I24, &bytes, &mut [got.as_mut_slice()], 0);
         assert_eq!(got, [-1.0, 8_388_607.0 / 8_388_608.0]);
-        got.clear();
-        decode(Decoding::U8, &[0, 128, 255], |_, v| got.push(v));
+        let mut got = [0.0f32; 3];
+        decode_planar(Decoding::U8, &[0, 128, 255], &mut [got.as_mut_slice()], 0);
         assert_eq!(got, [-1.0, 0.0, 127.0 / 128.0]);
     }
 }
